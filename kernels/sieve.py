@@ -32,3 +32,14 @@ def prime_sieve(n):
                 out[m] = 0
         d += 1
     return out
+
+
+@serial
+def totient_sieve(n):
+    """out[m] = Euler's phi(m) for 0 <= m <= n (out[0] = 0), int64."""
+    out = np.arange(n + 1).astype(np.int64)
+    for d in range(2, n + 1):
+        if out[d] == d:  # d is prime: not yet touched
+            for m in range(d, n + 1, d):
+                out[m] -= out[m] // d
+    return out

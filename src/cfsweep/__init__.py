@@ -1,2 +1,16 @@
-"""cfsweep: exact and sampled statistics of continued-fraction partial quotients of rationals."""
+"""cfsweep: exact and sampled statistics of continued-fraction partial quotients of rationals.
+
+Public API::
+
+    run = cfsweep.sweep(max_den=20000, out="runs/a", family="all", words=3)
+    table = cfsweep.frequency_table(run)      # pyarrow.Table, columns in cfsweep.schema
+"""
 __version__ = "0.1.0"
+
+from .errors import RunIntegrityError, UsageError  # noqa: E402
+from .families import Family, parse_family  # noqa: E402
+from .runs import Run, open_run, sweep  # noqa: E402
+from .tables import analyse, frequency_table  # noqa: E402
+
+__all__ = ["sweep", "open_run", "Run", "frequency_table", "analyse", "parse_family", "Family",
+           "UsageError", "RunIntegrityError", "__version__"]

@@ -19,7 +19,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .errors import UsageError
-from .kernels.sieve import prime_sieve, squarefree_sieve
+from .kernels.sieve import prime_sieve, squarefree_sieve, totient_sieve
 
 CLASSES = ("any", "squarefree", "prime")
 BASES = ("all", "reduced")
@@ -123,3 +123,21 @@ def parse_family(text: str | Family) -> Family:
         else:
             raise UsageError(f"family {text!r}: unknown term {term!r}; {allowed}")
     return Family(base, num or "any", den or "any")
+
+
+def expected_members(family: Family, q_lo: int, q_hi: int) -> list[int]:
+    """Number of members with each denominator q_lo..q_hi, by counting (never by expanding fractions).
+
+    ``all``: q - 1; ``reduced``: Euler's phi(q) from a totient sieve. Numerator/denominator classes are
+    counted from their sieves (see :func:`_class_counts`).
+    """
+    if family.num == "any" and family.den == "any":
+        if family.base == "all":
+            return [q - 1 for q in range(q_lo, q_hi + 1)]
+        phi = totient_sieve(q_hi)
+        return [int(v) for v in phi[q_lo:q_hi + 1]]
+    return _class_counts(family, q_lo, q_hi)
+
+
+def _class_counts(family: Family, q_lo: int, q_hi: int) -> list[int]:
+    raise UsageError(f"family {family.canonical!r} is not supported by this version")

@@ -1,0 +1,100 @@
+"""From kernel arrays to block tables: the bridge between ``cfsweep.kernels`` and the store.
+
+``compute_block`` runs the sweep kernel over one block of a plan and returns the four block tables
+(see ``BLOCK_SCHEMAS``) plus its completion totals; nothing here touches the file system.
+"""
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass
+
+import numpy as np
+import pyarrow as pa
+
+from .families import Family
+from .kernels.sweep import ROW_DIGITS, sweep_block, word_offset
+from .schema import word_label
+
+BLOCK_SCHEMAS = {
+    # per word that occurs: sums over the block's rationals r of c_r, c_r^2 and c_r * m_r
+    "words": pa.schema([("word", pa.string()), ("k", pa.int32()), ("sum_c", pa.int64()),
+                        ("sum_c2", pa.int64()), ("sum_cm", pa.int64())]),
+    # per word length k: sums over rationals of m_r = max(0, n_r - k + 1) and m_r^2
+    "positions": pa.schema([("k", pa.int32()), ("sum_m", pa.int64()), ("sum_m2", pa.int64())]),
+    # number of rationals of each expansion length (lengths that occur)
+    "lengths": pa.schema([("length", pa.int32()), ("rationals", pa.int64())]),
+    # per denominator: members, partial quotients, occurrences of the digits 1..4 (null when pooled)
+    "denominators": pa.schema([("q", pa.int64()), ("members", pa.int64()), ("partial_quotients", pa.int64())]
+                              + [(f"digit_{d}", pa.int64()) for d in range(1, ROW_DIGITS + 1)]),
+}
+
+
+def decode_rows(rows: np.ndarray, cap: int, max_k: int) -> tuple[np.ndarray, list[tuple[int, ...]]]:
+    """(k, symbols) of kernel word-table rows: row = word_offset(cap, k) + sum_i (s_i - 1) cap^(k-1-i)."""
+    offsets = np.array([word_offset(cap, k) for k in range(1, max_k + 2)], dtype=np.int64)
+    rows = np.asarray(rows, dtype=np.int64)
+    ks = np.searchsorted(offsets, rows, side="right").astype(np.int32)
+    codes = rows - offsets[ks - 1]
+    symbols = []
+    for k, code in zip(ks.tolist(), codes.tolist()):
+        digits = []
+        for _ in range(k):
+            code, s = divmod(code, cap)
+            digits.append(s + 1)
+        symbols.append(tuple(reversed(digits)))
+    return ks, symbols
+
+
+@dataclass
+class BlockResult:
+    tables: dict[str, pa.Table]
+    members: int
+    partial_quotients: int
+    seconds: float
+
+
+def tables_from_arrays(cap, max_k, word_sums, position_sums, length_hist, per_den=None, q_lo=None):
+    """Block tables from kernel outputs (shared by sweeps and sampled runs)."""
+    occurring = np.nonzero(word_sums[:, 0])[0]
+    ks, symbols = decode_rows(occurring, cap, max_k)
+    tables = {
+        "words": pa.table({
+            "word": pa.array([word_label(w, cap) for w in symbols], pa.string()),
+            "k": pa.array(ks, pa.int32()),
+            "sum_c": pa.array(word_sums[occurring, 0]),
+            "sum_c2": pa.array(word_sums[occurring, 1]),
+            "sum_cm": pa.array(word_sums[occurring, 2]),
+        }, schema=BLOCK_SCHEMAS["words"]),
+        "positions": pa.table({
+            "k": pa.array(np.arange(1, max_k + 1, dtype=np.int32)),
+            "sum_m": pa.array(position_sums[1:, 0]),
+            "sum_m2": pa.array(position_sums[1:, 1]),
+        }, schema=BLOCK_SCHEMAS["positions"]),
+    }
+    lengths = np.nonzero(length_hist)[0]
+    tables["lengths"] = pa.table({
+        "length": pa.array(lengths.astype(np.int32)),
+        "rationals": pa.array(length_hist[lengths]),
+    }, schema=BLOCK_SCHEMAS["lengths"])
+    if per_den is not None:
+        cols = {
+            "q": pa.array(np.arange(q_lo, q_lo + per_den.shape[0], dtype=np.int64)),
+            "members": pa.array(per_den[:, 0]),
+            "partial_quotients": pa.array(per_den[:, 1]),
+        }
+        for d in range(1, ROW_DIGITS + 1):
+            col = per_den[:, 1 + d]
+            cols[f"digit_{d}"] = pa.array(col, mask=col < 0)
+        tables["denominators"] = pa.table(cols, schema=BLOCK_SCHEMAS["denominators"])
+    return tables
+
+
+def compute_block(family: Family, q_lo: int, q_hi: int, cap: int, max_k: int, threads: int) -> BlockResult:
+    """Sweep all members p/q of ``family`` with q_lo <= q <= q_hi on ``threads`` Numba threads."""
+    num_ok, den_ok, coprime_only = family.membership(q_hi)
+    t0 = time.perf_counter()
+    word_sums, position_sums, length_hist, per_den = sweep_block(
+        q_lo, q_hi, num_ok, den_ok, coprime_only, cap, max_k, threads)
+    seconds = time.perf_counter() - t0
+    tables = tables_from_arrays(cap, max_k, word_sums, position_sums, length_hist, per_den, q_lo)
+    return BlockResult(tables, int(per_den[:, 0].sum()), int(per_den[:, 1].sum()), seconds)

@@ -140,4 +140,65 @@ def expected_members(family: Family, q_lo: int, q_hi: int) -> list[int]:
 
 
 def _class_counts(family: Family, q_lo: int, q_hi: int) -> list[int]:
-    raise UsageError(f"family {family.canonical!r} is not supported by this version")
+    """Members per denominator for families with numerator/denominator classes, from sieves.
+
+    ``all`` base: den_ok(q) * #{admissible p < q} (a prefix count of the numerator sieve).
+    ``reduced`` base: den_ok(q) times, for numerators ``any``: phi(q); ``prime``: pi(q-1) minus the
+    primes dividing q; ``squarefree``: S(q-1, rad q), the square-free m <= q-1 coprime to q, from the
+    recursion S(x, d) = S(x, d/r) - S(floor(x/r), d) for a prime r | d (square-free m <= x coprime to
+    d/r split by whether r | m) with S(x, 1) the prefix count of the square-free sieve.
+    """
+    num_ok = _class_array(family.num, q_hi)
+    den_ok = _class_array(family.den, q_hi)
+    den = np.ones(q_hi + 1, np.int64) if den_ok.size == 0 else den_ok.astype(np.int64)
+    if num_ok.size == 0:
+        prefix = np.arange(-1, q_hi, dtype=np.int64).clip(0)  # prefix[q] = #{1 <= p <= q-1}
+    else:
+        prefix = np.concatenate([[0], np.cumsum(num_ok.astype(np.int64))[:-1]])  # p <= q-1
+    qs = np.arange(q_lo, q_hi + 1)
+    if family.base == "all":
+        return [int(v) for v in (den[qs] * prefix[qs])]
+    spf = _smallest_prime_factor(q_hi)
+    out = []
+    if family.num == "any":
+        phi = totient_sieve(q_hi)
+        return [int(v) for v in den[qs] * phi[qs]]
+    sq_prefix = np.cumsum(squarefree_sieve(q_hi).astype(np.int64)) if family.num == "squarefree" else None
+    for q in qs.tolist():
+        if den[q] == 0:
+            out.append(0)
+            continue
+        primes = _prime_factors(q, spf)
+        if family.num == "prime":
+            out.append(int(prefix[q]) - sum(1 for r in primes if r < q))
+        else:
+            out.append(_squarefree_coprime(q - 1, tuple(primes), sq_prefix))
+    return out
+
+
+def _smallest_prime_factor(n: int) -> np.ndarray:
+    spf = np.zeros(n + 1, np.int64)
+    for d in range(2, n + 1):
+        if spf[d] == 0:
+            spf[d::d][spf[d::d] == 0] = d
+    return spf
+
+
+def _prime_factors(q: int, spf: np.ndarray) -> list[int]:
+    primes = []
+    while q > 1:
+        r = int(spf[q])
+        primes.append(r)
+        while q % r == 0:
+            q //= r
+    return primes
+
+
+def _squarefree_coprime(x: int, primes: tuple[int, ...], sq_prefix: np.ndarray) -> int:
+    """#{1 <= m <= x : m square-free, gcd(m, prod primes) = 1} by the recursion in _class_counts."""
+    if x <= 0:
+        return 0
+    if not primes:
+        return int(sq_prefix[x])
+    r, rest = primes[0], primes[1:]
+    return _squarefree_coprime(x, rest, sq_prefix) - _squarefree_coprime(x // r, primes, sq_prefix)

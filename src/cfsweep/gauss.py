@@ -186,9 +186,10 @@ def word_measure(symbols: Sequence[int], cap: int | None = None) -> float:
     return _word_measure_cached(tuple(min(s, cap) for s in symbols), int(cap))
 
 
-def word_measure_mp(symbols: Sequence[int], cap: int | None = None, dps: int = 40):
-    """As :func:`word_measure` but returned as an mpmath number at ``dps`` digits (for tests)."""
+def word_measure_mp(symbols: Sequence[int], cap: int | None = None, dps: int | None = 40):
+    """As :func:`word_measure` but returned as an mpmath number at ``dps`` digits (None: the current
+    mpmath precision, as needed inside ``mpmath.nsum``, which raises the precision as it goes)."""
     symbols = tuple(int(s) for s in symbols)
-    with mpmath.workdps(dps):
+    with mpmath.workdps(dps if dps is not None else mpmath.mp.dps):
         big = cap if cap is not None else max(symbols) + 1
         return +_pooled_measure_mp(*_split(symbols, big), big)

@@ -18,7 +18,8 @@ def digit_frequency_figure(tables: dict[str, pa.Table], cap: int, path: Path, ti
     fig, (ax, axr) = plt.subplots(2, 1, figsize=(8, 6.5), sharex=True, gridspec_kw={"height_ratios": [3, 2]})
     symbols = np.arange(1, cap + 1)
     mu = np.array([word_measure((int(s),), cap) for s in symbols])
-    ax.plot(symbols, mu, "k-", lw=1, label="Gauss–Kuzmin log2(1+1/(a(a+2))); last: log2(1+1/D)")
+    ax.plot(symbols[:-1], mu[:-1], "k-", lw=1, label="Gauss–Kuzmin log2(1+1/(a(a+2)))")
+    ax.plot(symbols[-1:], mu[-1:], "k_", ms=14, mew=2, label=f"Gauss measure of {cap}+: log2(1+1/{cap})")
     for offset, (name, table) in enumerate(tables.items()):
         d = table.filter(pa.compute.equal(table["k"], 1)).to_pydict()
         xs = np.array([cap if w.endswith("+") else int(w) for w in d["word"]], float)

@@ -116,6 +116,9 @@ def parse_family(text: str | Family) -> Family:
             key, value = key.strip(), value.strip()
             if key not in ("num", "den") or value not in CLASSES:
                 raise UsageError(f"family {text!r}: unknown term {term!r}; {allowed}")
+            current = num if key == "num" else den
+            if current is not None and current != value:
+                raise UsageError(f"family {text!r}: {key} given twice ({current} and {value})")
             if key == "num":
                 num = value
             else:

@@ -1,0 +1,90 @@
+"""Per-rational goodness: kernel vs exact rational arithmetic with mpmath Gauss measures."""
+import itertools
+from fractions import Fraction
+
+import mpmath
+import numpy as np
+import pytest
+from hypothesis import given, strategies as st
+
+from cfsweep import gauss
+from cfsweep.goodness import required_counts, required_words
+from cfsweep.kernels.goodness import cylinder_measure_f64, rational_goodness
+from reference import cf_fraction
+
+
+def brute_required(eps, max_k):
+    # mu(w) <= GK(b_i) for every digit of w (shift invariance), so only digits with GK > eps matter.
+    digits = [a for a in range(1, 10_000) if gauss.gauss_kuzmin(a) > eps]
+    words = []
+    for k in range(1, max_k + 1):
+        for w in itertools.product(digits, repeat=k):
+            if gauss.word_measure_mp(w, dps=30) > eps:
+                words.append(w)
+    return sorted(words, key=lambda w: (len(w), w))
+
+
+def reference_good(digits, eps, max_k, min_len):
+    """Exact frequencies (Fractions) against mpmath measures; absent words count with frequency 0."""
+    n = len(digits)
+    if n < min_len:
+        return False
+    for w in brute_required(eps, max_k):
+        if not any(tuple(digits[j:j + len(w)]) == w for j in range(n - len(w) + 1)):
+            return False
+    with mpmath.workdps(40):
+        for k in range(1, max_k + 1):
+            m = n - k + 1
+            for j in range(max(m, 0)):
+                w = tuple(digits[j:j + k])
+                c = sum(tuple(digits[i:i + k]) == w for i in range(m))
+                f = Fraction(c, m)
+                if abs(mpmath.mpf(f.numerator) / f.denominator - gauss.word_measure_mp(w, dps=40)) > eps:
+                    return False
+    return True
+
+
+@pytest.mark.parametrize("eps,max_k", [(0.05, 1), (0.1, 2), (0.2, 2), (0.03, 2), (0.3, 3)])
+def test_required_words_match_brute_force(eps, max_k):
+    assert required_words(eps, max_k) == brute_required(eps, max_k)
+
+
+@given(st.lists(st.integers(1, 10**9), min_size=1, max_size=12))
+def test_cylinder_measure_f64_matches_gauss_module(word):
+    arr = np.array(word, np.int64)
+    assert cylinder_measure_f64(arr, 0, len(word)) == pytest.approx(gauss.word_measure(word), rel=1e-12)
+
+
+def _kernel_good(digits, eps_values, max_k, min_len):
+    eps = np.array(eps_values, np.float64)
+    req = required_counts(eps_values, max_k)
+    out = np.zeros(len(eps_values), np.uint8)
+    buf = np.zeros(max(len(digits), 1), np.int64)
+    buf[:len(digits)] = digits
+    rational_goodness(buf, len(digits), max_k, min_len, eps, req, out)
+    return [bool(x) for x in out]
+
+
+@given(st.integers(2, 5000).flatmap(lambda q: st.tuples(st.integers(1, q - 1), st.just(q))),
+       st.sampled_from([(0.05,), (0.1, 0.2), (0.05, 0.1, 0.2), (0.3,)]), st.integers(1, 2), st.integers(1, 6))
+def test_goodness_matches_exact_reference(pq, eps_values, max_k, min_len):
+    digits = cf_fraction(*pq)
+    got = _kernel_good(digits, eps_values, max_k, min_len)
+    assert got == [reference_good(digits, e, max_k, min_len) for e in eps_values]
+
+
+def test_goodness_edge_cases():
+    # n < k: a single digit has no word of length 2, so every required word of length 2 is absent.
+    assert _kernel_good([2], [0.9], 2, 1) == [True]   # nothing has mu > 0.9 at k = 2; |1 - mu(2)| = 0.83 <= 0.9
+    assert _kernel_good([2], [0.5], 1, 1) == [False]  # digit 1 (mu 0.415) absent is fine, but f(2) = 1
+    # a digit far above any table cap: counted exactly, unpooled
+    assert _kernel_good([1, 1, 1000, 1, 2], [0.3], 1, 1) == [reference_good([1, 1, 1000, 1, 2], 0.3, 1, 1)]
+    # tolerances just above and below the largest deviation: digits [1, 2] have f(2) = 1/2 and
+    # |1/2 - mu(2)| = 0.33007... > |1/2 - mu(1)|; only the digit 1 has mu > 0.33, and it occurs.
+    dev = 0.5 - gauss.gauss_kuzmin(2)
+    for eps, expect in ((dev * (1 + 1e-9), True), (dev * (1 - 1e-9), False)):
+        assert _kernel_good([1, 2], [eps], 1, 1) == [reference_good([1, 2], eps, 1, 1)] == [expect]
+    # mu just above / below eps decides whether an absent word is required: digit 3 (mu = 0.0931) absent
+    mu3 = gauss.gauss_kuzmin(3)
+    assert _kernel_good([1, 1, 2, 1, 2], [mu3 * (1 + 1e-9)], 1, 1) == [reference_good([1, 1, 2, 1, 2], mu3 * (1 + 1e-9), 1, 1)]
+    assert _kernel_good([1, 1, 2, 1, 2], [mu3 * (1 - 1e-9)], 1, 1) == [False]

@@ -1,0 +1,136 @@
+"""How fast the proportion of good rationals approaches one: G(q), Wilson bands, fits, a heuristic.
+
+Input: per denominator q the number of family members and, for each tolerance eps, the number of
+(eps, K)-good members (see :mod:`cfsweep.goodness`). Output:
+
+* G(q) per q and in log-spaced bins of q, with 95% Wilson score intervals;
+* the fit 1 - G(q) ~ C q^(-alpha) over the upper range of q (weighted least squares of ln(1 - G) on
+  ln q; weights from the binomial variance of ln(1 - G), i.e. n (1 - G) / G by the delta method), with
+  the standard error of alpha and the reduced chi-square as goodness of fit;
+* the alternative 1 - G ~ C' (ln q)^(-beta) fitted the same way against ln ln q;
+* a heuristic central-limit prediction for K = 1 (see :func:`heuristic_bad_fraction`), labelled as such.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+import pyarrow as pa
+
+from .fits import least_squares
+from .gauss import HEILBRONN, PORTER, gauss_kuzmin
+from .schema import Z95
+
+
+def wilson_interval(successes, trials, z: float = Z95):
+    """95% Wilson score interval for a binomial proportion (arrays allowed; trials > 0).
+
+    The endpoints are the two roots pi of (p_hat - pi)^2 = z^2 pi (1 - pi) / n.
+    """
+    x = np.asarray(successes, dtype=np.float64)
+    n = np.asarray(trials, dtype=np.float64)
+    p = x / n
+    denom = 1.0 + z * z / n
+    centre = (p + z * z / (2 * n)) / denom
+    half = z / denom * np.sqrt(p * (1 - p) / n + z * z / (4 * n * n))
+    return centre - half, centre + half
+
+
+def log_bins(q_min: int, q_max: int, per_decade: int = 8) -> np.ndarray:
+    """Bin edges (integers, increasing, first = q_min, last = q_max + 1) spaced evenly in log q."""
+    if q_max <= q_min:
+        return np.array([q_min, q_max + 1])
+    count = max(1, int(math.ceil(per_decade * math.log10((q_max + 1) / q_min))))
+    edges = np.unique(np.round(np.geomspace(q_min, q_max + 1, count + 1)).astype(np.int64))
+    edges[0], edges[-1] = q_min, q_max + 1
+    return np.unique(edges)
+
+
+@dataclass
+class PowerFit:
+    """Fit of ln(1 - G) = ln C - rate * x, with x = ln q (power law) or ln ln q (log law)."""
+
+    model: str
+    rate: float
+    rate_se: float | None
+    log_c: float
+    reduced_chi2: float | None
+    points: int
+    q_from: int
+
+    def predict(self, q):
+        q = np.asarray(q, dtype=np.float64)
+        x = np.log(q) if self.model == "power" else np.log(np.log(q))
+        return np.exp(self.log_c - self.rate * x)
+
+
+def fit_bad_fraction(q_centres, members, good, model: str, upper_fraction: float = 0.5) -> PowerFit | None:
+    """Weighted least-squares fit of 1 - G over the upper ``upper_fraction`` of the bins (in log q).
+
+    Bins with G in (0, 1) only (ln(1 - G) and its variance are undefined otherwise). Returns None when
+    fewer than three usable bins remain.
+    """
+    q = np.asarray(q_centres, dtype=np.float64)
+    n = np.asarray(members, dtype=np.float64)
+    g = np.asarray(good, dtype=np.float64)
+    cut = math.exp(math.log(q.min()) + (1 - upper_fraction) * (math.log(q.max()) - math.log(q.min())))
+    use = (q >= cut) & (g > 0) & (g < n) & (q > math.e)
+    if use.sum() < 3:
+        return None
+    bad = 1.0 - g[use] / n[use]
+    y = np.log(bad)
+    x = np.log(q[use]) if model == "power" else np.log(np.log(q[use]))
+    weights = n[use] * bad / (1.0 - bad)  # 1 / var(ln(1 - G)) by the delta method
+    fit = least_squares(np.stack([np.ones_like(x), -x], axis=1), y, weights)
+    chi2 = fit.residual_sum_of_squares / fit.residual_dof if fit.residual_dof else None
+    se = fit.std_errors[1] if fit.std_errors else None
+    return PowerFit(model, fit.coefficients[1], se, fit.coefficients[0], chi2, int(use.sum()), int(cut))
+
+
+def _normal_sf(x):
+    return 0.5 * math.erfc(x / math.sqrt(2.0))
+
+
+def heuristic_bad_fraction(q, eps: float, sigma2: dict[int, float]) -> float:
+    """HEURISTIC (not a theorem) prediction of 1 - G(q) for K = 1.
+
+    A rational of denominator q has about n = (12 ln 2/pi^2) ln q + C - 1 partial quotients
+    (Heilbronn–Porter). Treat the count c_a of digit a as normal with mean mu_a n and variance
+    sigma_a^2 n, independently over the digits a; then P(good) ~ prod_a (1 - 2 Phi(-eps sqrt(n) / sigma_a)),
+    with the extra requirement that every digit with mu_a > eps occurs (absorbed in the same tail).
+    ``sigma2[a]`` is the per-place variance constant, estimated from the sweep itself by
+    :func:`variance_constants`.
+    """
+    n = HEILBRONN * math.log(q) + PORTER - 1.0
+    log_good = 0.0
+    for a, s2 in sigma2.items():
+        if s2 <= 0:
+            continue
+        tail = min(1.0, 2.0 * _normal_sf(eps * math.sqrt(n) / math.sqrt(s2)))
+        if tail >= 1.0:
+            return 1.0
+        log_good += math.log1p(-tail)
+    return -math.expm1(log_good)
+
+
+def variance_constants(words: pa.Table, positions: pa.Table, cap: int, max_digit: int = 12) -> dict[int, float]:
+    """sigma_a^2 = sum_r (c_r - mu_a m_r)^2 / sum_r m_r for digits a < min(cap, max_digit + 1).
+
+    Computed from a run's exact per-word sums (sum c, c^2, c m) and per-length place sums (sum m, m^2):
+    the observed between-rational variance of the digit count per place.
+    """
+    w = words.to_pydict()
+    p = positions.to_pydict()
+    m1 = dict(zip(p["k"], p["sum_m"]))[1]
+    m2 = dict(zip(p["k"], p["sum_m2"]))[1]
+    out = {}
+    for label, k, c, c2, cm in zip(w["word"], w["k"], w["sum_c"], w["sum_c2"], w["sum_cm"]):
+        if k != 1 or label.endswith("+"):
+            continue
+        a = int(label)
+        if a > max_digit or a >= cap:
+            continue
+        mu = gauss_kuzmin(a)
+        out[a] = (c2 - 2 * mu * cm + mu * mu * m2) / m1
+    return dict(sorted(out.items()))

@@ -572,8 +572,7 @@ class DecimalExpansion:
     convergents: tuple[int, int, int, int]
 
 
-def decimal_expansion(family: str | Family = "all", digits: int = 1000,
-                      chunk_size: int = 1 << 14) -> DecimalExpansion:
+def decimal_expansion(family: str | Family = "all", digits: int = 1000) -> DecimalExpansion:
     """The first ``digits`` decimal digits (1 <= digits <= 10**7) of x = [0; a1, a2, ...], proven.
 
     Partial quotients are taken until two consecutive convergents agree in all requested digits.
@@ -600,6 +599,6 @@ def decimal_expansion(family: str | Family = "all", digits: int = 1000,
         batch = max(64, len(terms) // 8)
 
 
-def decimals(family: str | Family = "all", digits: int = 1000, chunk_size: int = 1 << 14) -> str:
+def decimals(family: str | Family = "all", digits: int = 1000) -> str:
     """The first ``digits`` decimal digits of x after "0." as a string (see :func:`decimal_expansion`)."""
-    return decimal_expansion(family, digits, chunk_size).digits
+    return decimal_expansion(family, digits).digits

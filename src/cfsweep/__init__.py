@@ -11,6 +11,8 @@ from .errors import RunIntegrityError, UsageError  # noqa: E402
 from .families import Family, parse_family  # noqa: E402
 from .runs import Run, open_run, sweep  # noqa: E402
 from .tables import analyse, frequency_table  # noqa: E402
+from .stream import analyse_stream, decimals, iter_stream, write_stream  # noqa: E402
 
 __all__ = ["sweep", "open_run", "Run", "frequency_table", "analyse", "parse_family", "Family",
-           "UsageError", "RunIntegrityError", "__version__"]
+           "UsageError", "RunIntegrityError", "__version__",
+           "iter_stream", "write_stream", "analyse_stream", "decimals"]

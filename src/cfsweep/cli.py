@@ -36,7 +36,7 @@ def _add_sweep(sub):
     p.add_argument("--threads", default=None, help="Numba threads (default: all cores)")
     p.add_argument("--out", required=True, help="run directory (created; resumed if it holds the same run)")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
-    p.set_defaults(func=_cmd_sweep)
+    p.set_defaults(handler=_cmd_sweep)
 
 
 def _cmd_sweep(args) -> int:
@@ -65,7 +65,7 @@ def _add_table(sub):
     p.add_argument("--markdown", action="store_true", help="print the table as Markdown")
     p.add_argument("--top", default="10", help="words shown per length k >= 2 (default 10; all digits shown)")
     p.add_argument("--all-rows", action="store_true", help="print every row")
-    p.set_defaults(func=_cmd_table)
+    p.set_defaults(handler=_cmd_table)
 
 
 def _cmd_table(args) -> int:
@@ -95,7 +95,7 @@ def _add_demo(sub):
     p = sub.add_parser("demo", help="run the embedded demo scenario and write its figures")
     p.add_argument("--out", default="demo-output", help="folder for the demo runs and figures")
     p.add_argument("--max-den", default=None, help="override the demo's denominator bound")
-    p.set_defaults(func=_cmd_demo)
+    p.set_defaults(handler=_cmd_demo)
 
 
 def _cmd_demo(args) -> int:
@@ -118,14 +118,14 @@ def build_parser() -> argparse.ArgumentParser:
             module = __import__(f"cfsweep.{name}", fromlist=["register"])
         except ImportError:
             continue
-        module.register(sub)
+        module.register(sub).set_defaults(handler=module.run)
     return parser
 
 
 def main(argv=None) -> int:
     try:
         args = build_parser().parse_args(argv)
-        return args.func(args)
+        return args.handler(args)
     except UsageError as exc:
         print(f"cfsweep: error: {exc}", file=sys.stderr)
         return 2

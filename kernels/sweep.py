@@ -25,7 +25,10 @@ Outputs of :func:`sweep_block` (all int64):
 How it is fast (see the design note on kernel speed). One Euclid chain is bound by the latency of the
 divide, so LANES independent fractions advance in lockstep: a branch-free loop over lanes computes the
 quotient by a float division (float32 while q < 2**24, float64 beyond) and corrects it with one exact
-integer step, so every quotient is exact. Digit counts of the rational in each lane live in packed
+step, so every quotient is exact. Why one step suffices: x, y < 2**24 (2**53) are exact floats; the
+correctly rounded x/y is monotone, so its floor is the true quotient or one more. With a one too big,
+the true a*y >= x + 1, and x + 1 is representable, so the rounded a*y still exceeds x and the sign of
+x - a*y is right; after stepping a down, a*y <= x is exact and so is r = x - a*y. Digit counts of the rational in each lane live in packed
 per-lane counters (8-bit fields for symbols 0..7, 4-bit fields for 8..39: a symbol s >= 8 is a digit
 >= 9, and 9**c <= q < 2**31 bounds its count c by 9), read once when the lane finishes. Words of
 length >= 2 are read from a per-lane ring of symbols when the lane finishes. Lanes are refilled from
@@ -133,11 +136,9 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
     ``per_den[q - q_base]``. ``int_proto``/``float_proto`` only choose the lane types (int32/float32
     for q_hi < 2**24, int64/float64 beyond).
     """
-    x = np.empty(LANES, int_proto.dtype)
-    y = np.empty(LANES, int_proto.dtype)
     xf = np.empty(LANES, float_proto.dtype)
     yf = np.empty(LANES, float_proto.dtype)
-    quot = np.empty(LANES, int_proto.dtype)
+    quot = np.empty(LANES, float_proto.dtype)
     small = np.zeros(LANES, np.uint64)
     mid = np.zeros(LANES, np.uint64)
     high = np.zeros(LANES, np.uint64)
@@ -146,11 +147,14 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
     active = np.zeros(LANES, np.uint8)
     finished = np.empty(LANES, np.int64)
     ring = np.zeros((RING, LANES), np.uint8)
-    cap_box = np.empty(1, int_proto.dtype)
-    cap_box[0] = cap
-    cap_t = cap_box[0]
-    one_box = np.ones(1, int_proto.dtype)
-    one = one_box[0]
+    # constants of the lane float type, so that no operation widens to float64
+    consts = np.empty(3, float_proto.dtype)
+    consts[0] = 0
+    consts[1] = 1
+    consts[2] = cap
+    float_zero = consts[0]
+    float_one = consts[1]
+    cap_f = consts[2]
 
     # per length n, sum over rationals of the count of each symbol; per symbol, sum of count**2
     by_length = np.zeros((RING + 1, PACKED_SYMBOLS), np.int64)
@@ -169,52 +173,45 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
     n_active = 0
     for lane in range(LANES):
         if _next_member(state, q_hi, q_step, num_ok, den_ok):
-            x[lane] = state[0]
-            y[lane] = state[1]
+            xf[lane] = state[0]
+            yf[lane] = state[1]
             lane_q[lane] = state[0]
             active[lane] = 1
             n_active += 1
         else:
-            x[lane] = 2
-            y[lane] = 1
-        xf[lane] = x[lane]
-        yf[lane] = y[lane]
+            xf[lane] = 2
+            yf[lane] = 1
 
     t = np.int64(0)
     while n_active > 0:
         slot = t & RING_MASK
         # Phase 1: one Euclid step in every lane, branch-free so that LLVM vectorises it.
         for lane in range(LANES):
-            quot[lane] = np.floor(xf[lane] / yf[lane])
+            xv = xf[lane]
+            yv = yf[lane]
+            a = np.floor(xv / yv)
+            # a is the quotient or one too big; the sign test is exact (see the module docstring)
+            a = a - float_one * (xv - a * yv < float_zero)
+            quot[lane] = min(a, cap_f)
+            xf[lane] = yv
+            yf[lane] = xv - a * yv
         for lane in range(LANES):
-            xv = x[lane]
-            yv = y[lane]
-            a = quot[lane]
-            r = xv - a * yv
-            low = r < 0
-            a = a - low
-            r = r + yv * low
-            s = min(a, cap_t) - one
-            ring[slot, lane] = s
-            su = np.uint64(s)
+            su = np.uint64(quot[lane]) - _U1
+            ring[slot, lane] = su
             small[lane] += np.uint64(su < _U8) << ((su * _U8) & _U63)
             mid[lane] += np.uint64((su >= _U8) & (su < _U24)) << (((su - _U8) * _U4) & _U63)
             high[lane] += np.uint64(su >= _U24) << (((su - _U24) * _U4) & _U63)
-            x[lane] = yv
-            y[lane] = r
-            xf[lane] = yf[lane]
-            yf[lane] = r
         # Phase 2: indices of the lanes whose expansion just ended.
         n_done = 0
         for lane in range(LANES):
             finished[n_done] = lane
-            n_done += y[lane] == 0
+            n_done += yf[lane] == float_zero
         # Phase 3: book the finished rationals and refill their lanes.
         for j in range(n_done):
             lane = finished[j]
             if active[lane]:
                 n = t - t_first[lane] + 1
-                if (not coprime_only) or x[lane] == 1:
+                if (not coprime_only) or xf[lane] == float_one:
                     length_hist[n] += 1
                     v0 = small[lane]
                     row = lane_q[lane] - q_base
@@ -240,24 +237,23 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                             squares[24 + sym] += c * c
                     if words:
                         stamp += 1
-                        _record_words(ring, RING_MASK, lane, t_first[lane], n, 2, max_k, cap, offsets, codes,
+                        _record_words(ring, RING_MASK, lane, t_first[lane], n, 2, max_k, cap,
+                                      offsets, codes,
                                       wtab, stamp)
             small[lane] = _U0
             mid[lane] = _U0
             high[lane] = _U0
             t_first[lane] = t + 1
             if active[lane] and _next_member(state, q_hi, q_step, num_ok, den_ok):
-                x[lane] = state[0]
-                y[lane] = state[1]
+                xf[lane] = state[0]
+                yf[lane] = state[1]
                 lane_q[lane] = state[0]
             else:
                 if active[lane]:
                     active[lane] = 0
                     n_active -= 1
-                x[lane] = 2
-                y[lane] = 1
-            xf[lane] = x[lane]
-            yf[lane] = y[lane]
+                xf[lane] = 2
+                yf[lane] = 1
         t += 1
 
     for sym in range(cap):
@@ -392,7 +388,8 @@ def _tally_pairs_range(ps, qs, start, stop, cap, max_k, word_sums, length_hist):
             xi = yi
             yi = r
         length_hist[n] += 1
-        _record_words(ring, MAX_LENGTH - 1, 0, 0, n, 1, max_k, cap, offsets, codes, wtab, np.int64(i + 1))
+        _record_words(ring, MAX_LENGTH - 1, 0, 0, n, 1, max_k, cap, offsets, codes, wtab,
+                      np.int64(i + 1))
     _words_to_sums(wtab, 0, word_sums)
 
 

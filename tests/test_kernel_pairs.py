@@ -1,0 +1,100 @@
+"""tally_pairs: explicit fractions up to q < 2**63 against plain Euclid on Python integers."""
+import random
+
+import numpy as np
+import pytest
+from hypothesis import given, settings, strategies as st
+
+from cfsweep.kernels import sweep, sweep_reference as ref
+from test_kernel_sweep import python_sums
+
+EMPTY = np.zeros(0, np.uint8)
+
+
+def euclid_digits(p, q):
+    digits = []
+    while p:
+        a, r = divmod(q, p)
+        digits.append(a)
+        q, p = p, r
+    return digits
+
+
+def boundary_pairs(rng):
+    """Pairs whose remainders cross 2**24, 2**53 and reach 2**63 - 1, plus Fibonacci-like worst cases."""
+    pairs = []
+    for top in (2 ** 24, 2 ** 53, 2 ** 63 - 1):
+        for dq in (-3, -1, 0, 1, 2):
+            q = min(top + dq, 2 ** 63 - 1)
+            for p in (1, 2, 3, q // 2, q // 2 + 1, q - 1, q - 2, rng.randrange(1, q)):
+                if 0 < p < q:
+                    pairs.append((p, q))
+    fib = [1, 2]
+    while fib[-1] < 2 ** 63 - 1:
+        fib.append(fib[-1] + fib[-2])
+    pairs += [(fib[i - 1], fib[i]) for i in range(1, len(fib) - 1)]
+    # non-reduced pairs near the top: digits of the reduced form
+    pairs += [(3 * 7, 3 * 11), (2 ** 62 - 2, 2 ** 63 - 2), (6 * 10 ** 17, 9 * 10 ** 18)]
+    return pairs
+
+
+def check(pairs, cap, max_k, dtype):
+    ps = np.array([p for p, _ in pairs], dtype)
+    qs = np.array([q for _, q in pairs], dtype)
+    # plain Euclid on Python integers, then the same sums as the Fraction twin (integers only)
+    expected = _sums_from_digits([euclid_digits(p, q) for p, q in pairs], cap, max_k)
+    serial = sweep.tally_pairs_serial(ps, qs, cap, max_k)
+    for got, exp in zip(serial, expected):
+        assert np.array_equal(got, exp)
+    for n_chunks in (1, 3):
+        for got, exp in zip(sweep.tally_pairs(ps, qs, cap, max_k, n_chunks), expected):
+            assert np.array_equal(got, exp)
+
+
+def _sums_from_digits(expansions, cap, max_k):
+    offsets = [0, 0] + [sum(cap ** j for j in range(1, k)) for k in range(2, max_k + 2)]
+    word_sums = np.zeros((offsets[max_k + 1], 3), np.int64)
+    position_sums = np.zeros((max_k + 1, 2), np.int64)
+    length_hist = np.zeros(129, np.int64)
+    for digits in expansions:
+        syms = [min(a, cap) - 1 for a in digits]
+        n = len(syms)
+        length_hist[n] += 1
+        for k in range(1, max_k + 1):
+            m = max(0, n - k + 1)
+            position_sums[k] += (m, m * m)
+            counts = {}
+            for j in range(m):
+                code = 0
+                for s in syms[j:j + k]:
+                    code = code * cap + s
+                counts[code] = counts.get(code, 0) + 1
+            for code, c in counts.items():
+                word_sums[offsets[k] + code] += (c, c * c, c * m)
+    return word_sums, position_sums, length_hist
+
+
+@pytest.mark.parametrize("dtype", [np.int64, np.uint64])
+@pytest.mark.parametrize("cap,max_k", [(2, 3), (8, 2), (32, 3), (40, 1)])
+def test_boundaries_and_top_of_range(dtype, cap, max_k):
+    check(boundary_pairs(random.Random(7)), cap, max_k, dtype)
+
+
+@settings(max_examples=30, deadline=None)
+@given(st.lists(st.tuples(st.integers(1, 2 ** 63 - 2), st.integers(2, 2 ** 63 - 1)), min_size=1,
+                max_size=40), st.integers(2, 40), st.integers(1, 4))
+def test_random_pairs(raw, cap, max_k):
+    pairs = [(min(a, b - 1), b) for a, b in raw]
+    check(pairs, cap, max_k, np.uint64)
+
+
+def test_small_pairs_match_fraction_twin_and_sweep():
+    pairs = [(p, q) for q in range(2, 70) for p in range(1, q)]
+    ps = np.array([p for p, _ in pairs], np.int64)
+    qs = np.array([q for _, q in pairs], np.int64)
+    got = sweep.tally_pairs(ps, qs, 7, 3, 2)
+    for a, b in zip(got, python_sums(pairs, 7, 3)):
+        assert np.array_equal(a, b)
+    swept = ref.reference_sweep_block_serial(2, 69, EMPTY, EMPTY, False, 7, 3)
+    for a, b in zip(got, swept[:3]):
+        assert np.array_equal(a, b)

@@ -306,17 +306,18 @@ def is_prime_u64(n):
 # ----------------------------------------------------------------------------- square-freeness
 @serial
 def divisor_table(limit):
-    """Odd primes p <= limit (limit <= MAX_CUBE_ROOT_U64) as rows (p, p**-1 mod 2**64,
-    floor((2**64 - 1) / p), p**3) of a uint64 array of shape (count, 4).
+    """Odd primes p <= limit (limit <= MAX_CUBE_ROOT_U64) as the columns of a uint64 array of shape
+    (3, count): row 0 the primes p, row 1 p**-1 mod 2**64, row 2 floor((2**64 - 1) / p).
 
     With inv = p**-1 mod 2**64, p divides m exactly when m * inv mod 2**64 <= floor((2**64 - 1) / p),
     and then m * inv is the quotient m / p (Granlund and Montgomery 1994; Warren, "Hacker's Delight",
-    10-17): one multiplication instead of a division.
+    10-17): one multiplication instead of a division. Rows are contiguous so that the trial-division
+    loop streams 16 bytes per prime.
     """
     if limit > MAX_CUBE_ROOT_U64:
         limit = MAX_CUBE_ROOT_U64
     if limit < 3:
-        return np.zeros((0, 4), np.uint64)
+        return np.zeros((3, 0), np.uint64)
     composite = np.zeros(limit + 1, np.uint8)
     count = 0
     for d in range(3, limit + 1, 2):
@@ -324,20 +325,33 @@ def divisor_table(limit):
             count += 1
             for mult in range(d * d, limit + 1, 2 * d):
                 composite[mult] = 1
-    table = np.empty((count, 4), np.uint64)
-    row = 0
+    table = np.empty((3, count), np.uint64)
+    col = 0
     for d in range(3, limit + 1, 2):
         if composite[d] == 0:
             p = np.uint64(d)
             inv = p
-            for _ in range(5):
+            for _ in range(5):  # Newton: 3 -> 6 -> 12 -> 24 -> 48 -> 96 correct low bits
                 inv *= TWO - p * inv
-            table[row, 0] = p
-            table[row, 1] = inv
-            table[row, 2] = U64_MAX // p
-            table[row, 3] = p * p * p
-            row += 1
+            table[0, col] = p
+            table[1, col] = inv
+            table[2, col] = U64_MAX // p
+            col += 1
     return table
+
+
+@serial
+def _primes_up_to(divisors, x, stop):
+    """Number of table primes <= x among the first ``stop`` columns (binary search)."""
+    lo_i = 0
+    hi_i = stop
+    while lo_i < hi_i:
+        mid = (lo_i + hi_i) // 2
+        if divisors[0, mid] <= x:
+            lo_i = mid + 1
+        else:
+            hi_i = mid
+    return lo_i
 
 
 @serial
@@ -348,11 +362,11 @@ def is_squarefree_u64(n, divisors):
     divisors continue), so any table, even an empty one, gives the right answer; a table up to
     icbrt_u64(n) never falls back.
 
-    Why this is correct: trial division removes the primes p in increasing order, returning False as
-    soon as p**2 divides n. Once the next candidate p satisfies p**3 > m, where m is the cofactor left,
-    every prime factor of m is >= p > m**(1/3), so m has at most two prime factors (with multiplicity):
-    m = 1, a prime r, r*s with r != s (all square-free) or r**2. Hence n is square-free exactly when m
-    is not a perfect square > 1, which the exact integer square root decides.
+    Why this is correct: trial division removes the primes p <= m**(1/3) in increasing order, where m
+    is the cofactor left (it only shrinks), returning False as soon as p**2 divides n. Afterwards every
+    prime factor of m is > m**(1/3), so m has at most two prime factors (with multiplicity): m = 1, a
+    prime r, r*s with r != s (all square-free) or r**2. Hence n is square-free exactly when m is not a
+    perfect square > 1, which the exact integer square root decides.
     """
     n = np.uint64(n)
     if n == ZERO:
@@ -360,22 +374,22 @@ def is_squarefree_u64(n, divisors):
     if (n & THREE) == ZERO:
         return False
     m = n >> ONE if (n & ONE) == ZERO else n
-    next_candidate = THREE
-    for row in range(divisors.shape[0]):
-        if divisors[row, 3] > m:
-            next_candidate = divisors[row, 0]
-            break
-        inv = divisors[row, 1]
-        max_quotient = divisors[row, 2]
+    count = divisors.shape[1]
+    end = _primes_up_to(divisors, icbrt_u64(m), count)
+    col = 0
+    while col < end:
+        inv = divisors[1, col]
+        max_quotient = divisors[2, col]
         t = m * inv
         if t <= max_quotient:
             m = t
             if m * inv <= max_quotient:
                 return False
-        next_candidate = divisors[row, 0] + TWO
+            end = _primes_up_to(divisors, icbrt_u64(m), end)
+        col += 1
     # Beyond the table (or with no table): odd trial divisors d while d**3 <= m; composite d never
     # divide m because their prime factors were removed already.
-    d = next_candidate
+    d = divisors[0, count - 1] + TWO if count > 0 else THREE
     while d * d <= m // d:
         if m % d == ZERO:
             m //= d
@@ -469,11 +483,12 @@ def in_class_u64(value, cls, divisors):
 def draw_pair(stream, lo, hi, coprime_only, num_class, den_class, divisors):
     """One pair drawn uniformly from the family by rejection: returns (p, q, attempts).
 
-    An attempt draws q uniform in [lo, hi); if q is in the denominator class it draws u uniform in
-    [0, hi - 2) and keeps p = u + 1 when u < q - 1, i.e. with probability (q - 1) / (hi - 2), the
-    share of q among all pairs; such p is uniform in [1, q). So each pair (p, q) with 1 <= p < q,
-    lo <= q < hi is proposed with the same probability 1 / ((hi - lo) (hi - 2)), and rejecting the
-    pairs outside the family leaves the result uniform over the family.
+    An attempt draws q uniform in [lo, hi), then u uniform in [0, hi - 2), and proposes p = u + 1
+    when u < q - 1, i.e. with probability (q - 1) / (hi - 2), the share of q among all pairs; such p
+    is uniform in [1, q). So each pair (p, q) with 1 <= p < q, lo <= q < hi is proposed with the same
+    probability 1 / ((hi - lo) (hi - 2)), and rejecting the pairs outside the family leaves the result
+    uniform over the family. The cheap test u < q - 1 comes before the class tests, which dominate
+    the cost at large q; every attempt uses the same two draws, whatever the family.
     """
     width = hi - lo
     p_range = hi - TWO
@@ -481,12 +496,12 @@ def draw_pair(stream, lo, hi, coprime_only, num_class, den_class, divisors):
     while True:
         attempts += 1
         q = lo + uniform_below(width, stream)
-        if not in_class_u64(q, den_class, divisors):
-            continue
         u = uniform_below(p_range, stream)
         if u >= q - ONE:
             continue
         p = u + ONE
+        if not in_class_u64(q, den_class, divisors):
+            continue
         if not in_class_u64(p, num_class, divisors):
             continue
         if coprime_only and gcd_u64(p, q) != ONE:

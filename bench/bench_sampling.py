@@ -21,7 +21,7 @@ import numpy as np
 import sympy
 
 from cfsweep.kernels import sampling as ks
-from cfsweep.kernels._jit import serial
+from cfsweep.kernels._jit import UNCACHED
 
 A, S, P = ks.CLASS_ANY, ks.CLASS_SQUAREFREE, ks.CLASS_PRIME
 FAMILIES = {  # canonical family text -> (coprime_only, num_class, den_class)
@@ -72,7 +72,8 @@ def best_rate(n, lo, hi, family, table, repeats=3):
     return n / best, attempts
 
 
-@serial
+# Uncached: Numba's cache does not notice changes in the kernels these loops inline.
+@numba.njit(**UNCACHED)
 def _prime_test_loop(values):
     found = 0
     for i in range(values.shape[0]):
@@ -81,7 +82,7 @@ def _prime_test_loop(values):
     return found
 
 
-@serial
+@numba.njit(**UNCACHED)
 def _squarefree_test_loop(values, table):
     found = 0
     for i in range(values.shape[0]):

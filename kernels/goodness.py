@@ -9,7 +9,9 @@ import math
 
 import numpy as np
 
-from ._jit import serial
+from numba import prange
+
+from ._jit import parallel, serial
 
 _INV_LN2 = 1.0 / math.log(2.0)
 
@@ -87,3 +89,89 @@ def rational_goodness(digits, n, max_k, min_len, eps, required, good_out):
             good_out[e] = 0
         else:
             good_out[e] = 1 if max_dev <= eps[e] else 0
+
+
+@serial
+def _goodness_chunk(q_lo, q_hi, q_step, num_ok, den_ok, coprime_only, max_k, min_len, eps, required, out):
+    has_num = num_ok.shape[0] > 0
+    has_den = den_ok.shape[0] > 0
+    n_eps = eps.shape[0]
+    digits = np.empty(128, np.int64)
+    flags = np.zeros(n_eps, np.uint8)
+    q = q_lo
+    while q <= q_hi:
+        i = q - q_lo
+        if (not has_den) or den_ok[q] != 0:
+            for p in range(1, q):
+                if has_num and num_ok[p] == 0:
+                    continue
+                x = np.int64(q)
+                y = np.int64(p)
+                n = 0
+                while y != 0:
+                    a = x // y
+                    r = x - a * y
+                    digits[n] = a
+                    n += 1
+                    x = y
+                    y = r
+                if coprime_only and x != 1:
+                    continue
+                rational_goodness(digits, n, max_k, min_len, eps, required, flags)
+                for e in range(n_eps):
+                    out[i, e] += flags[e]
+        q += q_step
+
+
+@parallel
+def goodness_block(q_lo, q_hi, num_ok, den_ok, coprime_only, max_k, min_len, eps, required, n_chunks):
+    """good[q - q_lo, e] = number of (eps[e], max_k)-good members with denominator q, q_lo <= q <= q_hi.
+
+    Membership arrays as in :mod:`cfsweep.kernels.sweep`; denominators are dealt to ``n_chunks``
+    chunks cyclically and each row is written by one chunk only.
+    """
+    out = np.zeros((q_hi - q_lo + 1, eps.shape[0]), np.int64)
+    for c in prange(n_chunks):
+        if q_lo + c <= q_hi:
+            _goodness_chunk(q_lo + c, q_hi, n_chunks, num_ok, den_ok, coprime_only, max_k, min_len, eps,
+                            required, out[c:])
+    return out
+
+
+@parallel
+def goodness_pairs(ps, qs, bin_edges, max_k, min_len, eps, required, n_chunks):
+    """Per bin b (bin_edges[b] <= q < bin_edges[b+1]): counts[b, 0] members, counts[b, 1 + e] good ones.
+
+    ``ps``, ``qs``: uint64 pairs 0 < p < q < 2**63 (not necessarily reduced); ``bin_edges`` increasing
+    uint64. Integer Euclid on uint64 (exact for every such q).
+    """
+    n_bins = bin_edges.shape[0] - 1
+    n_eps = eps.shape[0]
+    partial = np.zeros((n_chunks, n_bins, 1 + n_eps), np.int64)
+    total = ps.shape[0]
+    for c in prange(n_chunks):
+        digits = np.empty(128, np.uint64)
+        flags = np.zeros(n_eps, np.uint8)
+        for i in range(c, total, n_chunks):
+            q = np.uint64(qs[i])
+            x = q
+            y = np.uint64(ps[i])
+            n = 0
+            while y != np.uint64(0):
+                a = x // y
+                r = x - a * y
+                digits[n] = a
+                n += 1
+                x = y
+                y = r
+            b = np.searchsorted(bin_edges, q, side="right") - 1
+            if b < 0 or b >= n_bins:
+                continue
+            rational_goodness(digits, n, max_k, min_len, eps, required, flags)
+            partial[c, b, 0] += 1
+            for e in range(n_eps):
+                partial[c, b, 1 + e] += flags[e]
+    out = np.zeros((n_bins, 1 + n_eps), np.int64)
+    for c in range(n_chunks):
+        out += partial[c]
+    return out

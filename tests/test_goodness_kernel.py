@@ -1,4 +1,5 @@
 """Per-rational goodness: kernel vs exact rational arithmetic with mpmath Gauss measures."""
+import functools
 import itertools
 from fractions import Fraction
 
@@ -13,15 +14,21 @@ from cfsweep.kernels.goodness import cylinder_measure_f64, rational_goodness
 from reference import cf_fraction
 
 
+@functools.lru_cache(maxsize=None)
 def brute_required(eps, max_k):
     # mu(w) <= GK(b_i) for every digit of w (shift invariance), so only digits with GK > eps matter.
-    digits = [a for a in range(1, 10_000) if gauss.gauss_kuzmin(a) > eps]
+    digits = list(itertools.takewhile(lambda a: gauss.gauss_kuzmin(a) > eps, itertools.count(1)))
     words = []
     for k in range(1, max_k + 1):
         for w in itertools.product(digits, repeat=k):
             if gauss.word_measure_mp(w, dps=30) > eps:
                 words.append(w)
     return sorted(words, key=lambda w: (len(w), w))
+
+
+@functools.lru_cache(maxsize=None)
+def _mu_mp(word):
+    return gauss.word_measure_mp(word, dps=30)
 
 
 def reference_good(digits, eps, max_k, min_len):
@@ -32,14 +39,14 @@ def reference_good(digits, eps, max_k, min_len):
     for w in brute_required(eps, max_k):
         if not any(tuple(digits[j:j + len(w)]) == w for j in range(n - len(w) + 1)):
             return False
-    with mpmath.workdps(40):
+    with mpmath.workdps(30):
         for k in range(1, max_k + 1):
             m = n - k + 1
             for j in range(max(m, 0)):
                 w = tuple(digits[j:j + k])
                 c = sum(tuple(digits[i:i + k]) == w for i in range(m))
                 f = Fraction(c, m)
-                if abs(mpmath.mpf(f.numerator) / f.denominator - gauss.word_measure_mp(w, dps=40)) > eps:
+                if abs(mpmath.mpf(f.numerator) / f.denominator - _mu_mp(w)) > eps:
                     return False
     return True
 
@@ -88,3 +95,54 @@ def test_goodness_edge_cases():
     mu3 = gauss.gauss_kuzmin(3)
     assert _kernel_good([1, 1, 2, 1, 2], [mu3 * (1 + 1e-9)], 1, 1) == [reference_good([1, 1, 2, 1, 2], mu3 * (1 + 1e-9), 1, 1)]
     assert _kernel_good([1, 1, 2, 1, 2], [mu3 * (1 - 1e-9)], 1, 1) == [False]
+
+
+def test_goodness_block_per_denominator_matches_reference():
+    # Per-q good counts of the kernel equal the plain-Python counts for all q <= 300, several eps and k.
+    from cfsweep.families import parse_family
+    from cfsweep.kernels.goodness import goodness_block
+    from reference import member
+
+    q_max = 300
+    for family, eps_values, max_k, min_len in [("all", (0.05, 0.1, 0.2), 1, 1), ("reduced", (0.1, 0.2), 2, 2),
+                                               ("squarefree", (0.2, 0.3), 2, 3)]:
+        f = parse_family(family)
+        num_ok, den_ok, cop = f.membership(q_max)
+        eps = np.array(eps_values)
+        got = goodness_block(2, q_max, num_ok, den_ok, cop, max_k, min_len, eps, required_counts(eps_values, max_k), 3)
+        for q in range(2, q_max + 1):
+            want = [0] * len(eps_values)
+            for p in range(1, q):
+                if member(f.base, f.num, f.den, p, q):
+                    digits = cf_fraction(p, q)
+                    for e, ev in enumerate(eps_values):
+                        want[e] += _reference_good_cached(tuple(digits), ev, max_k, min_len)
+            assert list(got[q - 2]) == want, (family, q)
+
+
+_CACHE = {}
+
+
+def _reference_good_cached(digits, eps, max_k, min_len):
+    key = (digits, eps, max_k, min_len)
+    if key not in _CACHE:
+        _CACHE[key] = reference_good(list(digits), eps, max_k, min_len)
+    return _CACHE[key]
+
+
+def test_goodness_pairs_matches_block():
+    from cfsweep.kernels.goodness import goodness_block, goodness_pairs
+
+    empty = np.zeros(0, np.uint8)
+    eps_values = (0.1, 0.2)
+    eps = np.array(eps_values)
+    req = required_counts(eps_values, 2)
+    per_q = goodness_block(2, 200, empty, empty, False, 2, 2, eps, req, 2)
+    ps = np.array([p for q in range(2, 201) for p in range(1, q)], np.uint64)
+    qs = np.array([q for q in range(2, 201) for p in range(1, q)], np.uint64)
+    edges = np.array([2, 50, 120, 201], np.uint64)
+    got = goodness_pairs(ps, qs, edges, 2, 2, eps, req, 3)
+    for b in range(3):
+        lo, hi = int(edges[b]), int(edges[b + 1])
+        assert got[b, 0] == sum(q - 1 for q in range(lo, hi))
+        assert list(got[b, 1:]) == list(per_q[lo - 2:hi - 2].sum(axis=0))

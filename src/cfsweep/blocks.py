@@ -12,6 +12,8 @@ import numpy as np
 import pyarrow as pa
 
 from .families import Family
+from .goodness import required_counts
+from .kernels.goodness import goodness_block
 from .kernels.sweep import ROW_DIGITS, sweep_block, word_offset
 from .schema import word_label
 
@@ -26,7 +28,24 @@ BLOCK_SCHEMAS = {
     # per denominator: members, partial quotients, occurrences of the digits 1..4 (null when pooled)
     "denominators": pa.schema([("q", pa.int64()), ("members", pa.int64()), ("partial_quotients", pa.int64())]
                               + [(f"digit_{d}", pa.int64()) for d in range(1, ROW_DIGITS + 1)]),
+    # per denominator range [q_lo, q_hi] (one q for sweeps, a bin for sampled runs) and tolerance eps:
+    # members and (eps, good_k)-good members
+    "goodness": pa.schema([("q_lo", pa.int64()), ("q_hi", pa.int64()), ("eps", pa.float64()),
+                           ("members", pa.int64()), ("good", pa.int64())]),
 }
+
+
+def goodness_table(q_lo, q_hi, eps_values, members, good) -> pa.Table:
+    """Long-format goodness rows: one per (range, eps). ``members``: per range; ``good``: [range, eps]."""
+    n_ranges, n_eps = good.shape
+    rows_lo = np.repeat(np.asarray(q_lo, np.int64), n_eps)
+    rows_hi = np.repeat(np.asarray(q_hi, np.int64), n_eps)
+    return pa.table({
+        "q_lo": pa.array(rows_lo), "q_hi": pa.array(rows_hi),
+        "eps": pa.array(np.tile(np.asarray(eps_values, np.float64), n_ranges)),
+        "members": pa.array(np.repeat(np.asarray(members, np.int64), n_eps)),
+        "good": pa.array(good.reshape(-1).astype(np.int64)),
+    }, schema=BLOCK_SCHEMAS["goodness"])
 
 
 def decode_rows(rows: np.ndarray, cap: int, max_k: int) -> tuple[np.ndarray, list[tuple[int, ...]]]:
@@ -89,12 +108,26 @@ def tables_from_arrays(cap, max_k, word_sums, position_sums, length_hist, per_de
     return tables
 
 
-def compute_block(family: Family, q_lo: int, q_hi: int, cap: int, max_k: int, threads: int) -> BlockResult:
-    """Sweep all members p/q of ``family`` with q_lo <= q <= q_hi on ``threads`` Numba threads."""
+def compute_block(family: Family, q_lo: int, q_hi: int, cap: int, max_k: int, threads: int,
+                  goodness: dict | None = None) -> BlockResult:
+    """Sweep all members p/q of ``family`` with q_lo <= q <= q_hi on ``threads`` Numba threads.
+
+    ``goodness``: None, or {"good_eps": [...], "good_k": K, "good_min_len": L} to add the per-denominator
+    counts of good members (a second pass over the block by ``kernels.goodness``).
+    """
     num_ok, den_ok, coprime_only = family.membership(q_hi)
     t0 = time.perf_counter()
     word_sums, position_sums, length_hist, per_den = sweep_block(
         q_lo, q_hi, num_ok, den_ok, coprime_only, cap, max_k, threads)
+    good = None
+    if goodness and goodness.get("good_eps"):
+        eps = np.asarray(goodness["good_eps"], np.float64)
+        required = required_counts(goodness["good_eps"], goodness["good_k"])
+        good = goodness_block(q_lo, q_hi, num_ok, den_ok, coprime_only, goodness["good_k"],
+                              goodness["good_min_len"], eps, required, threads)
     seconds = time.perf_counter() - t0
     tables = tables_from_arrays(cap, max_k, word_sums, position_sums, length_hist, per_den, q_lo)
+    if good is not None:
+        qs = np.arange(q_lo, q_hi + 1)
+        tables["goodness"] = goodness_table(qs, qs, goodness["good_eps"], per_den[:, 0], good)
     return BlockResult(tables, int(per_den[:, 0].sum()), int(per_den[:, 1].sum()), seconds)

@@ -37,7 +37,7 @@ def progress_bar(total: int, quiet: bool, desc: str):
 def store_block(store: RunStore, block: dict, family: Family, threads: int) -> dict:
     """Compute one block and write it (files first, completion record last). Returns the record."""
     p = store.params
-    result = compute_block(family, block["q_lo"], block["q_hi"], p["cap"], p["words"], threads)
+    result = compute_block(family, block["q_lo"], block["q_hi"], p["cap"], p["words"], threads, goodness=p)
     record = {
         "members": result.members,
         "partial_quotients": result.partial_quotients,

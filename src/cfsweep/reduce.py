@@ -31,6 +31,7 @@ class MergedRun:
     positions: pa.Table
     lengths: pa.Table
     denominators: pa.Table | None
+    goodness: pa.Table | None = None
 
 
 def _concat(store: RunStore, kind: str) -> pa.Table:
@@ -50,6 +51,8 @@ def merge_run(path_or_store) -> MergedRun:
     lengths = _concat(store, "lengths").group_by("length").aggregate(
         [("rationals", "sum")]).rename_columns(["length", "rationals"]).sort_by("length")
     denominators = _concat(store, "denominators").sort_by("q") if "denominators" in kinds else None
+    goodness = _concat(store, "goodness").sort_by([("q_lo", "ascending"), ("eps", "ascending")]) \
+        if "goodness" in kinds else None
     members = int(pc.sum(lengths["rationals"]).as_py() or 0)
     records = [store.read_record(b["id"]) for b in store.plan]
     recorded_members = sum(r["members"] for r in records)
@@ -71,4 +74,5 @@ def merge_run(path_or_store) -> MergedRun:
         positions=positions,
         lengths=lengths,
         denominators=denominators,
+        goodness=goodness,
     )

@@ -10,7 +10,8 @@ from .errors import UsageError
 from .executors import run_local
 from .families import Family, expected_members, parse_family
 from .plan import MAX_BLOCKS, make_plan
-from .store import RunStore
+from .goodness import check_goodness_params
+from .store import BLOCK_KINDS, RunStore
 from .validate import (MAX_CAP, MAX_SWEEP_DEN, MAX_WORD_LENGTH, check_range, check_word_table,
                        parse_int)
 
@@ -48,7 +49,8 @@ def open_run(path) -> Run:
     return Run(RunStore.open(Path(path)))
 
 
-def sweep_params(max_den, min_den=2, family="all", cap=DEFAULT_CAP, words=DEFAULT_WORDS, blocks=None) -> dict:
+def sweep_params(max_den, min_den=2, family="all", cap=DEFAULT_CAP, words=DEFAULT_WORDS, blocks=None,
+                 good_eps=None, good_k=1, good_min_len=None) -> dict:
     """Validate sweep parameters; return the canonical parameter dict stored in the manifest."""
     max_den = check_range(parse_int(max_den, "--max-den"), "--max-den", 2, MAX_SWEEP_DEN)
     min_den = check_range(parse_int(min_den, "--min-den"), "--min-den", 2, max_den)
@@ -58,7 +60,7 @@ def sweep_params(max_den, min_den=2, family="all", cap=DEFAULT_CAP, words=DEFAUL
     check_word_table(cap, words)
     if blocks is not None:
         blocks = check_range(parse_int(blocks, "--blocks"), "--blocks", 1, MAX_BLOCKS)
-    return {
+    params = {
         "kind": "sweep",
         "min_den": min_den,
         "max_den": max_den,
@@ -67,6 +69,29 @@ def sweep_params(max_den, min_den=2, family="all", cap=DEFAULT_CAP, words=DEFAUL
         "words": words,
         "blocks": blocks,
     }
+    params.update(goodness_params(good_eps, good_k, good_min_len))
+    return params
+
+
+def goodness_params(good_eps, good_k=1, good_min_len=None) -> dict:
+    """Manifest entries of the goodness options (all None when goodness is off)."""
+    if good_eps is None:
+        return {"good_eps": None, "good_k": None, "good_min_len": None}
+    if isinstance(good_eps, str):
+        good_eps = [x for x in good_eps.split(",")]
+    elif isinstance(good_eps, (int, float)):
+        good_eps = [good_eps]
+    k = parse_int(good_k, "--good-k")
+    min_len = None if good_min_len is None else parse_int(good_min_len, "--good-min-len")
+    eps, k, min_len = check_goodness_params(list(good_eps), k, min_len)
+    return {"good_eps": list(eps), "good_k": k, "good_min_len": min_len}
+
+
+def block_kinds(params: dict) -> list[str]:
+    kinds = list(BLOCK_KINDS)
+    if params.get("good_eps"):
+        kinds.append("goodness")
+    return kinds
 
 
 def plan_blocks(params: dict) -> list[dict]:
@@ -87,21 +112,24 @@ def check_threads(threads) -> int | None:
 
 
 def sweep(max_den, out, *, min_den=2, family="all", cap=DEFAULT_CAP, words=DEFAULT_WORDS, blocks=None,
-          threads=None, quiet=True) -> Run:
+          threads=None, quiet=True, good_eps=None, good_k=1, good_min_len=None) -> Run:
     """Sweep every member p/q of ``family`` with min_den <= q <= max_den into the run directory ``out``.
 
     Parameters: ``max_den`` (2 .. 2^31-1), ``min_den`` (2 .. max_den), ``family`` (see
     :mod:`cfsweep.families`), ``cap`` D (digits >= D pooled as "D+", 2 .. 65536), ``words`` K (word lengths
     1..K; the word table sum_k D^k must stay <= 2^24 rows), ``blocks`` (default: by estimated work),
-    ``threads`` (Numba threads; default all). Completed blocks of an earlier identical call are kept;
+    ``threads`` (Numba threads; default all). ``good_eps`` (tolerances 0 < eps < 1, a list or a
+    comma-separated string), ``good_k`` (word lengths 1..6, default 1) and ``good_min_len`` (default
+    good_k) switch on per-denominator counts of (eps, k)-good members (see :mod:`cfsweep.goodness`).
+    Completed blocks of an earlier identical call are kept;
     bad or missing ones are (re)computed. A directory holding a run of other parameters is refused.
     Returns the :class:`Run`.
     """
-    params = sweep_params(max_den, min_den, family, cap, words, blocks)
+    params = sweep_params(max_den, min_den, family, cap, words, blocks, good_eps, good_k, good_min_len)
     threads = check_threads(threads)
     RunStore.check_output_path(Path(out))
     plan = plan_blocks(params)
-    store = RunStore.create_or_resume(Path(out), "sweep", params, plan)
+    store = RunStore.create_or_resume(Path(out), "sweep", params, plan, block_kinds(params))
     pending = []
     for block, status in zip(store.plan, store.statuses()):
         if status.state == "bad":

@@ -33,6 +33,8 @@ MANIFEST = "manifest.json"
 BLOCK_DIR = "blocks"
 TABLE_DIR = "tables"
 BLOCK_KINDS = ("words", "positions", "lengths", "denominators")
+#: Every kind a block may have; a run's manifest lists the ones it writes ("block_kinds").
+ALL_BLOCK_KINDS = BLOCK_KINDS + ("goodness",)
 
 
 def params_hash(params: dict) -> str:
@@ -114,7 +116,8 @@ class RunStore:
             )
 
     @classmethod
-    def create_or_resume(cls, path: Path, kind: str, params: dict, plan: list[dict]) -> "RunStore":
+    def create_or_resume(cls, path: Path, kind: str, params: dict, plan: list[dict],
+                         block_kinds: list[str] | None = None) -> "RunStore":
         """Create the run directory, or reopen it if it holds a run with identical parameters.
 
         A directory holding a run with different parameters is refused, naming the parameters that differ.
@@ -142,6 +145,7 @@ class RunStore:
             "params": params,
             "params_hash": h,
             "plan": plan,
+            "block_kinds": list(block_kinds or BLOCK_KINDS),
         }
         (path / BLOCK_DIR).mkdir(parents=True, exist_ok=True)
         atomic_write_json(manifest_path, manifest)
@@ -208,7 +212,7 @@ class RunStore:
         bid = block["id"]
         done = self.done_file(bid)
         if not done.exists():
-            present = [k for k in BLOCK_KINDS if self.block_file(bid, k).exists()]
+            present = [k for k in ALL_BLOCK_KINDS if self.block_file(bid, k).exists()]
             if present:
                 return BlockStatus(bid, "bad", "block files without a completion record")
             return BlockStatus(bid, "missing")
@@ -240,7 +244,7 @@ class RunStore:
 
     def discard_block(self, block_id: str) -> None:
         """Remove the completion record first (so the block reads as missing), then its files."""
-        for path in [self.done_file(block_id)] + [self.block_file(block_id, k) for k in BLOCK_KINDS]:
+        for path in [self.done_file(block_id)] + [self.block_file(block_id, k) for k in ALL_BLOCK_KINDS]:
             try:
                 path.unlink()
             except FileNotFoundError:

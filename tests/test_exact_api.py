@@ -177,6 +177,7 @@ def test_cli_runs_and_writes_outputs(tmp_path, capsys):
     (["--max-den", "100", "--plot", "a.png"], "--plot"),
     (["--max-den", "100", "--all-words", "2"], "word 1,32+"),
     (["--max-den", "100", "--threads", "0"], "--threads 0"),
+    (["--max-den", "100", "--words", "20+"], "word '20+'"),
 ])
 def test_cli_bad_input_exits_2_with_one_line(argv, text, capsys):
     assert main(argv) == 2

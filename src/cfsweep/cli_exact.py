@@ -35,7 +35,7 @@ def register(subparsers) -> argparse.ArgumentParser:
     return p
 
 
-def _parse_words(items):
+def _parse_words(items, cap):
     from cfsweep.schema import parse_word_label
 
     if not items:
@@ -44,9 +44,11 @@ def _parse_words(items):
     for item in items:
         for text in item.split():
             try:
-                symbols, _pooled = parse_word_label(text)
+                symbols, pooled = parse_word_label(text)
             except ValueError:
                 raise UsageError(f"word {text!r}: expected digits >= 1 joined by commas, e.g. 1,2") from None
+            if pooled and (len(symbols) != 1 or symbols[0] != cap):
+                raise UsageError(f"word {text!r}: the pooled symbol is allowed only alone and as {cap}+ (--cap {cap})")
             words.append(symbols)
     return words
 
@@ -110,7 +112,7 @@ def run(args) -> int:
         raise UsageError(f"--out {args.out!r} exists and is not a directory")
     all_words = None if args.all_words is None else parse_integer(args.all_words, "--all-words", 1, 12)
     threads = None if args.threads is None else parse_integer(args.threads, "--threads", 1, 1024)
-    result = exact_counts(max_den, family=args.family, words=_parse_words(args.words), cap=cap,
+    result = exact_counts(max_den, family=args.family, words=_parse_words(args.words, cap), cap=cap,
                           all_words=all_words, checkpoints=checkpoints, threads=threads, verify=args.verify)
     print(render(result, markdown=args.markdown))
     if args.out:

@@ -35,6 +35,10 @@ def _add_sweep(sub):
     p.add_argument("--blocks", default=None, help="number of blocks (default: by estimated work)")
     p.add_argument("--threads", default=None, help="Numba threads (default: all cores)")
     p.add_argument("--out", required=True, help="run directory (created; resumed if it holds the same run)")
+    p.add_argument("--good-eps", default=None,
+                   help="count (eps, k)-good members per denominator for these tolerances, e.g. 0.05,0.1,0.2")
+    p.add_argument("--good-k", default="1", help="goodness uses words of length <= K (1..6; default 1)")
+    p.add_argument("--good-min-len", default=None, help="good members have length >= L (default: good-k)")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.set_defaults(handler=_cmd_sweep)
 
@@ -44,7 +48,8 @@ def _cmd_sweep(args) -> int:
 
     t0 = time.perf_counter()
     run = sweep(args.max_den, args.out, min_den=args.min_den, family=args.family, cap=args.cap,
-                words=args.words, blocks=args.blocks, threads=args.threads, quiet=args.quiet)
+                words=args.words, blocks=args.blocks, threads=args.threads, quiet=args.quiet,
+                good_eps=args.good_eps, good_k=args.good_k, good_min_len=args.good_min_len)
     seconds = time.perf_counter() - t0
     records = [run.store.read_record(b["id"]) for b in run.store.plan]
     members = sum(r["members"] for r in records)
@@ -91,6 +96,51 @@ def _cmd_table(args) -> int:
     return 0
 
 
+def _add_good(sub):
+    p = sub.add_parser("good", help="proportion of good members G(q), Wilson bands, fitted rates",
+                       description="For a run swept with --good-eps: G(q) per denominator and in log bins "
+                                   "with 95%% Wilson intervals, fits of 1-G ~ C q^-alpha and 1-G ~ C (ln q)^-beta "
+                                   "over the upper half of the bins (in log q), a central-limit heuristic for "
+                                   "k = 1, a PNG and Parquet/CSV of the curve.")
+    p.add_argument("run", help="run directory")
+    p.add_argument("--per-decade", default="8", help="log bins per decade of q (1..100; default 8)")
+    p.add_argument("--png", default=None, help="figure path (default RUN/tables/good.png)")
+    p.add_argument("--csv", default=None, help="also write the binned curve as CSV to this file")
+    p.set_defaults(handler=_cmd_good)
+
+
+def _cmd_good(args) -> int:
+    import pyarrow.compute as pc
+
+    from .good import good_proportion
+    from .plots import goodness_figure
+    from .report import render_text
+    from .runs import open_run
+    from .store import TABLE_DIR, atomic_write_bytes, parquet_bytes
+    from .validate import check_range, parse_int
+
+    per_decade = check_range(parse_int(args.per_decade, "--per-decade"), "--per-decade", 1, 100)
+    run = open_run(args.run)
+    result = good_proportion(run, per_decade=per_decade)
+    tables = run.path / TABLE_DIR
+    meta = {"cfsweep.family": result.family, "cfsweep.good_k": str(result.good_k)}
+    atomic_write_bytes(tables / "good_curve.parquet", parquet_bytes(result.curve, meta))
+    atomic_write_bytes(tables / "good_bins.parquet", parquet_bytes(result.bins, meta))
+    png = goodness_figure(result, Path(args.png) if args.png else tables / "good.png")
+    if args.csv:
+        from .report import write_csv
+        write_csv(result.bins, args.csv)
+    print(f"family {result.family}, (eps, k)-goodness with k <= {result.good_k}, length >= {result.good_min_len}")
+    cols = ["q_lo", "q_hi", "eps", "members", "good", "proportion", "wilson_low", "wilson_high"]
+    # the bins of the top two decades of q
+    top = result.bins.filter(pc.greater_equal(result.bins["q_lo"], max(result.bins["q_lo"].to_pylist()) // 100))
+    print(render_text(top, cols))
+    for line in result.lines:
+        print(line)
+    print(f"figure {png}; curve {tables / 'good_curve.parquet'}, bins {tables / 'good_bins.parquet'}")
+    return 0
+
+
 def _add_demo(sub):
     p = sub.add_parser("demo", help="run the embedded demo scenario and write its figures")
     p.add_argument("--out", default="demo-output", help="folder for the demo runs and figures")
@@ -112,6 +162,7 @@ def build_parser() -> argparse.ArgumentParser:
     sub = parser.add_subparsers(dest="command", required=True, parser_class=_Parser)
     _add_sweep(sub)
     _add_table(sub)
+    _add_good(sub)
     _add_demo(sub)
     for name in ("cli_exact", "cli_stream"):
         try:

@@ -134,3 +134,104 @@ def variance_constants(words: pa.Table, positions: pa.Table, cap: int, max_digit
         mu = gauss_kuzmin(a)
         out[a] = (c2 - 2 * mu * cm + mu * mu * m2) / m1
     return dict(sorted(out.items()))
+
+
+@dataclass
+class GoodResult:
+    """Output of :func:`good_proportion`.
+
+    ``curve``: per range (q for sweeps, a bin for sampled runs) and eps: q_lo, q_hi, eps, members, good,
+    proportion, wilson_low, wilson_high. ``bins``: the same over log-spaced bins of q. ``fits``:
+    eps -> {"power": PowerFit | None, "log": PowerFit | None}. ``heuristic``: eps -> list of predicted
+    1 - G at the bin centres (K = 1 only, else empty). ``lines``: one plain-words summary per eps.
+    """
+
+    family: str
+    good_k: int
+    good_min_len: int
+    curve: pa.Table
+    bins: pa.Table
+    fits: dict
+    heuristic: dict
+    lines: list
+
+
+def _with_intervals(q_lo, q_hi, eps, members, good) -> pa.Table:
+    members = np.asarray(members, np.int64)
+    good = np.asarray(good, np.int64)
+    ok = members > 0
+    prop = np.full(members.shape, np.nan)
+    lo = np.full(members.shape, np.nan)
+    hi = np.full(members.shape, np.nan)
+    prop[ok] = good[ok] / members[ok]
+    lo[ok], hi[ok] = wilson_interval(good[ok], members[ok])
+    return pa.table({"q_lo": pa.array(np.asarray(q_lo, np.int64)), "q_hi": pa.array(np.asarray(q_hi, np.int64)),
+                     "eps": pa.array(np.asarray(eps, np.float64)), "members": pa.array(members),
+                     "good": pa.array(good), "proportion": pa.array(prop), "wilson_low": pa.array(lo),
+                     "wilson_high": pa.array(hi)})
+
+
+def good_proportion(run, per_decade: int = 8, fit_upper_fraction: float = 0.5) -> GoodResult:
+    """Proportion of (eps, K)-good members per denominator range and in log bins, with fits.
+
+    ``run``: a Run, a run directory or a MergedRun made with goodness options. Raises UsageError if the
+    run holds no goodness counts.
+    """
+    from .errors import UsageError
+    from .reduce import MergedRun, merge_run
+
+    merged = run if isinstance(run, MergedRun) else merge_run(getattr(run, "store", run))
+    if merged.goodness is None:
+        raise UsageError(f"run {str(merged.path)!r} has no goodness counts; sweep it with --good-eps")
+    g = merged.goodness
+    eps_values = sorted(set(g["eps"].to_pylist()))
+    q_lo = np.asarray(g["q_lo"])
+    q_hi = np.asarray(g["q_hi"])
+    eps_col = np.asarray(g["eps"])
+    members = np.asarray(g["members"])
+    good = np.asarray(g["good"])
+    curve = _with_intervals(q_lo, q_hi, eps_col, members, good)
+    edges = log_bins(int(q_lo.min()), int(q_hi.max()), per_decade)
+    bin_tables, fits, heuristic, lines = [], {}, {}, []
+    sigma2 = None
+    if merged.params.get("good_k") == 1 and merged.words is not None:
+        sigma2 = variance_constants(merged.words, merged.positions, merged.params["cap"])
+    for eps in eps_values:
+        sel = eps_col == eps
+        # ranges are assigned to the bin holding their lower end (ranges never straddle bins in sweeps)
+        idx = np.searchsorted(edges, q_lo[sel], side="right") - 1
+        n_bins = len(edges) - 1
+        b_members = np.bincount(idx, weights=members[sel], minlength=n_bins).astype(np.int64)
+        b_good = np.bincount(idx, weights=good[sel], minlength=n_bins).astype(np.int64)
+        keep = b_members > 0
+        lo_e, hi_e = edges[:-1][keep], edges[1:][keep] - 1
+        table = _with_intervals(lo_e, hi_e, np.full(keep.sum(), eps), b_members[keep], b_good[keep])
+        bin_tables.append(table)
+        centres = np.sqrt(lo_e.astype(float) * hi_e.astype(float))
+        fits[eps] = {"power": fit_bad_fraction(centres, b_members[keep], b_good[keep], "power", fit_upper_fraction),
+                     "log": fit_bad_fraction(centres, b_members[keep], b_good[keep], "log", fit_upper_fraction)}
+        heuristic[eps] = [heuristic_bad_fraction(c, eps, sigma2) for c in centres] if sigma2 else []
+        lines.append(_summary_line(eps, table, fits[eps]))
+    return GoodResult(merged.family.canonical, merged.params.get("good_k"), merged.params.get("good_min_len"),
+                      curve, pa.concat_tables(bin_tables), fits, heuristic, lines)
+
+
+def _summary_line(eps: float, bins: pa.Table, fit: dict) -> str:
+    last = bins.slice(bins.num_rows - 1)
+    p, lo, hi = last["proportion"][0].as_py(), last["wilson_low"][0].as_py(), last["wilson_high"][0].as_py()
+    text = (f"eps={eps:g}: in the top bin q in [{last['q_lo'][0].as_py()}, {last['q_hi'][0].as_py()}] "
+            f"{100 * p:.2f}% of {last['members'][0].as_py():,} members are good (95% Wilson {100 * lo:.2f}-{100 * hi:.2f}%)")
+    parts = []
+    for name, label in (("power", "1-G ~ C q^-alpha"), ("log", "1-G ~ C (ln q)^-beta")):
+        f = fit[name]
+        if f is None:
+            parts.append(f"{label}: too few bins with 0 < G < 1")
+            continue
+        se = "n/a" if f.rate_se is None else f"{f.rate_se:.3f}"
+        chi = "n/a" if f.reduced_chi2 is None else f"{f.reduced_chi2:.2f}"
+        rate = "alpha" if name == "power" else "beta"
+        parts.append(f"{label}: {rate} = {f.rate:.3f} +/- {se} (reduced chi2 {chi}, {f.points} bins, q >= {f.q_from})")
+    if fit["power"] and fit["log"] and fit["power"].reduced_chi2 and fit["log"].reduced_chi2:
+        better = "power law" if fit["power"].reduced_chi2 < fit["log"].reduced_chi2 else "log law"
+        parts.append(f"the {better} fits better")
+    return text + "; " + "; ".join(parts)

@@ -67,3 +67,41 @@ def convergence_figure(curves: dict[str, pa.Table], cap: int, path: Path, title:
     fig.savefig(path, dpi=120)
     plt.close(fig)
     return Path(path)
+
+
+def goodness_figure(result, path: Path) -> Path:
+    """G(q) per log bin with Wilson bands, the fitted curves, and the heuristic, one colour per eps."""
+    fig, (ax, axb) = plt.subplots(2, 1, figsize=(8, 7), sharex=True)
+    bins = result.bins
+    for j, eps in enumerate(sorted(result.fits)):
+        sel = bins.filter(pa.compute.equal(bins["eps"], eps)).to_pydict()
+        centres = np.sqrt(np.array(sel["q_lo"], float) * np.array(sel["q_hi"], float))
+        prop = np.array(sel["proportion"])
+        lo, hi = np.array(sel["wilson_low"]), np.array(sel["wilson_high"])
+        color = f"C{j}"
+        ax.plot(centres, prop, "o-", color=color, ms=3, label=f"eps = {eps:g}")
+        ax.fill_between(centres, lo, hi, color=color, alpha=0.25)
+        axb.plot(centres, 1 - prop, "o", color=color, ms=3)
+        axb.fill_between(centres, np.clip(1 - hi, 1e-12, None), np.clip(1 - lo, 1e-12, None), color=color, alpha=0.2)
+        for name, style in (("power", "-"), ("log", "--")):
+            f = result.fits[eps][name]
+            if f is not None:
+                qq = centres[centres >= f.q_from]
+                axb.plot(qq, f.predict(qq), style, color=color, lw=1,
+                         label=f"eps {eps:g}: {'C q^-a' if name == 'power' else 'C (ln q)^-b'}, rate {f.rate:.2f}")
+        if result.heuristic.get(eps):
+            axb.plot(centres, result.heuristic[eps], ":", color=color, lw=1.5,
+                     label=f"eps {eps:g}: heuristic (CLT), not a fit")
+    ax.set_xscale("log")
+    ax.set_ylabel("G(q): proportion of good members")
+    ax.set_title(f"(eps, {result.good_k})-good members of {result.family} (95% Wilson bands)")
+    ax.legend(fontsize=8)
+    axb.set_xscale("log")
+    axb.set_yscale("log")
+    axb.set_ylabel("1 - G(q)")
+    axb.set_xlabel("denominator q (log bins)")
+    axb.legend(fontsize=6)
+    fig.tight_layout()
+    fig.savefig(path, dpi=120)
+    plt.close(fig)
+    return Path(path)

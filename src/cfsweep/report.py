@@ -13,6 +13,8 @@ COLUMNS = ["word", "k", "count", "positions", "frequency", "gauss_measure", "rat
 def _fmt(value, column: str) -> str:
     if value is None:
         return "-"
+    if isinstance(value, float) and column == "eps":
+        return f"{value:g}"
     if isinstance(value, float):
         if math.isnan(value):
             return "nan"

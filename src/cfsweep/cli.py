@@ -60,6 +60,46 @@ def _cmd_sweep(args) -> int:
     return 0
 
 
+def _add_sample(sub):
+    p = sub.add_parser("sample", help="sample members uniformly with LO <= q < HI (q up to 2^63)",
+                       description="Sampled run: members drawn uniformly from the family's pairs (p, q) "
+                                   "with LO <= q < HI by a counter-based generator (Philox-4x64-10), so the "
+                                   "run is the same for any number of blocks, threads or workers. Standard "
+                                   "errors of a sampled run are genuine 95% confidence intervals.")
+    p.add_argument("--den-range", default=None, help="LO:HI, 2 <= LO < HI <= 2^63, e.g. 1e12:2e12")
+    p.add_argument("--scan", default=None, help="J0:J1: the ladder of ranges [10^j, 2*10^j), 1 <= J0 <= J1 <= 18")
+    p.add_argument("--samples", required=True, help="samples per range (1 .. 10^12)")
+    p.add_argument("--seed", required=True, help="seed of the generator (0 .. 2^64-1)")
+    p.add_argument("--family", default="all", help=FAMILY_HELP)
+    p.add_argument("--words", default="3", help="longest word length K counted (default 3)")
+    p.add_argument("--cap", default="32", help="digits >= cap are pooled as 'cap+' (default 32)")
+    p.add_argument("--block-samples", default=None, help="samples per block (default 2^20)")
+    p.add_argument("--good-eps", default=None, help="tolerances for goodness counts, e.g. 0.05,0.1,0.2")
+    p.add_argument("--good-k", default="1", help="goodness word length K (1..6; default 1)")
+    p.add_argument("--good-min-len", default=None, help="minimum length of a good member (default: good-k)")
+    p.add_argument("--threads", default=None, help="Numba threads (default: all cores)")
+    p.add_argument("--out", required=True, help="run directory")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.set_defaults(handler=_cmd_sample)
+
+
+def _cmd_sample(args) -> int:
+    from .runs import sample
+
+    t0 = time.perf_counter()
+    run = sample(args.out, den_range=args.den_range, scan=args.scan, samples=args.samples, seed=args.seed,
+                 family=args.family, cap=args.cap, words=args.words, block_samples=args.block_samples,
+                 threads=args.threads, quiet=args.quiet, good_eps=args.good_eps, good_k=args.good_k,
+                 good_min_len=args.good_min_len)
+    records = [run.store.read_record(b["id"]) for b in run.store.plan]
+    print(f"run {run.path}: family {run.params['family']}, {len(records)} blocks complete, "
+          f"{sum(r['members'] for r in records):,} samples, {sum(r['partial_quotients'] for r in records):,} "
+          f"partial quotients, {sum(r['attempts'] for r in records):,} draws "
+          f"({time.perf_counter() - t0:.1f} s for this call)")
+    print(f"next: cfsweep table {run.path}")
+    return 0
+
+
 def _add_table(sub):
     p = sub.add_parser("table", help="merge a run's blocks and print its frequency table",
                        description="Verifies every block, merges them, prints the summary and the table, "
@@ -91,6 +131,19 @@ def _cmd_table(args) -> int:
     print(render_summary(info))
     print()
     print(render_markdown(shown) if args.markdown else render_text(shown))
+    if run.store.manifest["kind"] == "sample" and len(run.params["den_ranges"]) > 1:
+        from .sampled import range_frequencies
+
+        ranges = range_frequencies(run.store)
+        print()
+        print("digit frequencies per sampled range (95% confidence intervals):")
+        cols = ["q_lo", "q_hi", "samples", "word", "frequency", "std_error", "ci_low", "ci_high", "gauss_measure", "z"]
+        print(render_markdown(ranges, cols) if args.markdown else render_text(ranges, cols))
+    from .plots import convergence_figure, digit_frequency_figure
+
+    cap = run.params["cap"]
+    digit_frequency_figure({info["family"]: table}, cap, paths["frequency"].parent / "digits.png")
+    convergence_figure({info["family"]: conv}, cap, paths["frequency"].parent / "convergence.png")
     if shown.num_rows < table.num_rows:
         print(f"({shown.num_rows} of {table.num_rows} rows shown; all rows in {paths['frequency']})")
     return 0
@@ -161,6 +214,7 @@ def build_parser() -> argparse.ArgumentParser:
                      epilog=FAMILY_DOC, formatter_class=argparse.RawDescriptionHelpFormatter)
     sub = parser.add_subparsers(dest="command", required=True, parser_class=_Parser)
     _add_sweep(sub)
+    _add_sample(sub)
     _add_table(sub)
     _add_good(sub)
     _add_demo(sub)

@@ -37,6 +37,13 @@ def progress_bar(total: int, quiet: bool, desc: str):
 def store_block(store: RunStore, block: dict, family: Family, threads: int) -> dict:
     """Compute one block and write it (files first, completion record last). Returns the record."""
     p = store.params
+    if p["kind"] == "sample":
+        from .sampled import compute_sample_block
+
+        tables, record = compute_sample_block(p, block, threads)
+        record.update(q_lo=block["q_lo"], q_hi=block["q_hi"], finished_unix=time.time())
+        store.write_block(block["id"], tables, record)
+        return record
     result = compute_block(family, block["q_lo"], block["q_hi"], p["cap"], p["words"], threads, goodness=p)
     record = {
         "members": result.members,

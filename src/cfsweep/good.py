@@ -191,20 +191,32 @@ def good_proportion(run, per_decade: int = 8, fit_upper_fraction: float = 0.5) -
     members = np.asarray(g["members"])
     good = np.asarray(g["good"])
     curve = _with_intervals(q_lo, q_hi, eps_col, members, good)
-    edges = log_bins(int(q_lo.min()), int(q_hi.max()), per_decade)
+    sampled = merged.method == "sample"
+    # sweeps: log-spaced bins of q; sampled runs: each sampled range is its own bin
+    edges = None if sampled else log_bins(int(q_lo.min()), int(q_hi.max()), per_decade)
     bin_tables, fits, heuristic, lines = [], {}, {}, []
     sigma2 = None
     if merged.params.get("good_k") == 1 and merged.words is not None:
         sigma2 = variance_constants(merged.words, merged.positions, merged.params["cap"])
     for eps in eps_values:
         sel = eps_col == eps
-        # ranges are assigned to the bin holding their lower end (ranges never straddle bins in sweeps)
-        idx = np.searchsorted(edges, q_lo[sel], side="right") - 1
-        n_bins = len(edges) - 1
-        b_members = np.bincount(idx, weights=members[sel], minlength=n_bins).astype(np.int64)
-        b_good = np.bincount(idx, weights=good[sel], minlength=n_bins).astype(np.int64)
+        if sampled:
+            ranges = sorted(set(zip(q_lo[sel].tolist(), q_hi[sel].tolist())))
+            starts = np.array([r[0] for r in ranges], np.int64)
+            ends = np.array([r[1] for r in ranges], np.int64)
+            idx = np.searchsorted(starts, q_lo[sel])
+        else:
+            starts, ends = edges[:-1], edges[1:] - 1
+            # each denominator row lies in the bin holding it
+            idx = np.searchsorted(edges, q_lo[sel], side="right") - 1
+        n_bins = len(starts)
+        # integer sums (np.add.at keeps int64 exact; bincount would go through float64)
+        b_members = np.zeros(n_bins, np.int64)
+        b_good = np.zeros(n_bins, np.int64)
+        np.add.at(b_members, idx, members[sel])
+        np.add.at(b_good, idx, good[sel])
         keep = b_members > 0
-        lo_e, hi_e = edges[:-1][keep], edges[1:][keep] - 1
+        lo_e, hi_e = starts[keep], ends[keep]
         table = _with_intervals(lo_e, hi_e, np.full(keep.sum(), eps), b_members[keep], b_good[keep])
         bin_tables.append(table)
         centres = np.sqrt(lo_e.astype(float) * hi_e.astype(float))

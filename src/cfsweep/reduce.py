@@ -51,8 +51,12 @@ def merge_run(path_or_store) -> MergedRun:
     lengths = _concat(store, "lengths").group_by("length").aggregate(
         [("rationals", "sum")]).rename_columns(["length", "rationals"]).sort_by("length")
     denominators = _concat(store, "denominators").sort_by("q") if "denominators" in kinds else None
-    goodness = _concat(store, "goodness").sort_by([("q_lo", "ascending"), ("eps", "ascending")]) \
-        if "goodness" in kinds else None
+    goodness = None
+    if "goodness" in kinds:
+        # sampled ranges span several blocks: sum their rows per (range, eps)
+        goodness = _concat(store, "goodness").group_by(["q_lo", "q_hi", "eps"]).aggregate(
+            [("members", "sum"), ("good", "sum")]).rename_columns(["q_lo", "q_hi", "eps", "members", "good"]) \
+            .sort_by([("q_lo", "ascending"), ("eps", "ascending")])
     members = int(pc.sum(lengths["rationals"]).as_py() or 0)
     records = [store.read_record(b["id"]) for b in store.plan]
     recorded_members = sum(r["members"] for r in records)

@@ -73,7 +73,10 @@ def render_summary(summary: dict) -> str:
     rows = [
         ("method", summary["method"]),
         ("family", summary["family"]),
-        ("denominators", f"{summary['min_den']} <= q <= {summary['max_den']}"),
+        ("denominators", f"{summary['min_den']} <= q <= {summary['max_den']}" if summary.get("den_ranges") is None
+         else "; ".join(f"{lo} <= q < {hi}" for lo, hi in summary["den_ranges"][:4])
+         + (f"; ... ({len(summary['den_ranges'])} ranges)" if len(summary["den_ranges"]) > 4 else "")
+         + f" (sampled, seed {summary['seed']})"),
         ("cap / word length", f"{summary['cap']} / {summary['words']}"),
         ("fractions", f"{summary['fractions']:,}"),
         ("partial quotients", f"{summary['partial_quotients']:,}"),

@@ -138,3 +138,33 @@ def sweep(max_den, out, *, min_den=2, family="all", cap=DEFAULT_CAP, words=DEFAU
             pending.append(block)
     run_local(store, pending, parse_family(params["family"]), threads, quiet=quiet)
     return Run(store)
+
+
+def sample(out, *, den_range=None, scan=None, samples, seed, family="all", cap=DEFAULT_CAP, words=DEFAULT_WORDS,
+           block_samples=None, threads=None, quiet=True, good_eps=None, good_k=1, good_min_len=None) -> Run:
+    """Sample ``samples`` members of ``family`` uniformly per denominator range into the run ``out``.
+
+    Give exactly one of ``den_range`` ("LO:HI" or (LO, HI), 2 <= LO < HI <= 2^63; denominators
+    LO <= q < HI) and ``scan`` ("J0:J1": the ladder [10^j, 2*10^j), j = J0..J1, 1 <= J0 <= J1 <= 18,
+    ``samples`` in each). ``seed`` (0 .. 2^64-1) fixes every draw, whatever the split into blocks,
+    threads or workers. Other options as for :func:`sweep`. Returns the :class:`Run`.
+    """
+    from .sampled import parse_range, plan_sample_blocks, sample_params, scan_ranges
+
+    if (den_range is None) == (scan is None):
+        raise UsageError("give exactly one of --den-range LO:HI and --scan J0:J1")
+    ranges = [parse_range(den_range)] if den_range is not None else scan_ranges(scan)
+    params = sample_params(ranges, samples, seed, family, cap, words, block_samples, good_eps, good_k,
+                           good_min_len, scan=None if scan is None else str(scan))
+    threads = check_threads(threads)
+    RunStore.check_output_path(Path(out))
+    kinds = [k for k in block_kinds(params) if k != "denominators"]
+    store = RunStore.create_or_resume(Path(out), "sample", params, plan_sample_blocks(params), kinds)
+    pending = []
+    for block, status in zip(store.plan, store.statuses()):
+        if status.state == "bad":
+            store.discard_block(block["id"])
+        if status.state != "complete":
+            pending.append(block)
+    run_local(store, pending, parse_family(params["family"]), threads, quiet=quiet)
+    return Run(store)

@@ -98,6 +98,8 @@ def summary(merged: MergedRun, table: pa.Table) -> dict:
         "family": merged.family.canonical,
         "min_den": merged.params.get("min_den"),
         "max_den": merged.params.get("max_den"),
+        "den_ranges": merged.params.get("den_ranges"),
+        "seed": merged.params.get("seed"),
         "cap": merged.params["cap"],
         "words": merged.params["words"],
         "fractions": merged.members,

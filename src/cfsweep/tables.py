@@ -29,10 +29,20 @@ def frequency_table(run) -> pa.Table:
 
 
 def analyse(run) -> tuple[pa.Table, dict, pa.Table]:
-    """(frequency table, summary dict, convergence table) of a complete run."""
+    """(frequency table, summary dict, convergence table) of a complete run.
+
+    The convergence table follows the sweep along q (sweeps) or lists the sampled ranges (sampled runs).
+    """
     merged = _merged(run)
     table = frequency_rows(merged)
-    return table, summary(merged, table), convergence(merged)
+    if merged.method == "sample":
+        from .sampled import range_convergence
+        from .store import RunStore
+
+        conv = range_convergence(RunStore.open(merged.path))
+    else:
+        conv = convergence(merged)
+    return table, summary(merged, table), conv
 
 
 def write_run_tables(run_path: Path, table: pa.Table, info: dict, conv: pa.Table) -> dict[str, Path]:

@@ -13,7 +13,7 @@ import pyarrow as pa
 
 from .families import Family
 from .goodness import required_counts
-from .kernels.goodness import goodness_block
+from .kernels.goodness import goodness_block, goodness_pairs
 from .kernels.sweep import ROW_DIGITS, sweep_block, word_offset
 from .schema import word_label
 
@@ -117,6 +117,8 @@ def compute_block(family: Family, q_lo: int, q_hi: int, cap: int, max_k: int, th
     """
     num_ok, den_ok, coprime_only = family.membership(q_hi)
     t0 = time.perf_counter()
+    if family.predicate is not None:
+        return _predicate_block(family, q_lo, q_hi, cap, max_k, goodness, t0)
     word_sums, position_sums, length_hist, per_den = sweep_block(
         q_lo, q_hi, num_ok, den_ok, coprime_only, cap, max_k, threads)
     good = None
@@ -130,4 +132,47 @@ def compute_block(family: Family, q_lo: int, q_hi: int, cap: int, max_k: int, th
     if good is not None:
         qs = np.arange(q_lo, q_hi + 1)
         tables["goodness"] = goodness_table(qs, qs, goodness["good_eps"], per_den[:, 0], good)
+    return BlockResult(tables, int(per_den[:, 0].sum()), int(per_den[:, 1].sum()), seconds)
+
+
+def _predicate_block(family: Family, q_lo: int, q_hi: int, cap: int, max_k: int, goodness, t0) -> BlockResult:
+    """Slow path for user predicates: list the members of each q, then count them as explicit pairs."""
+    from .kernels.predicate import member_numerators
+    from .kernels.sweep import n_word_rows, tally_pairs_serial
+
+    num_ok, den_ok, coprime_only = family.membership(q_hi)
+    n_rows = n_word_rows(cap, max_k)
+    word_sums = np.zeros((n_rows, 3), np.int64)
+    position_sums = np.zeros((max_k + 1, 2), np.int64)
+    length_hist = None
+    per_den = np.zeros((q_hi - q_lo + 1, 2 + ROW_DIGITS), np.int64)
+    good_eps = goodness.get("good_eps") if goodness else None
+    good = np.zeros((q_hi - q_lo + 1, len(good_eps)), np.int64) if good_eps else None
+    if good_eps:
+        eps = np.asarray(good_eps, np.float64)
+        required = required_counts(good_eps, goodness["good_k"])
+    scratch = np.empty(q_hi + 1, np.int64)
+    for q in range(q_lo, q_hi + 1):
+        i = q - q_lo
+        count = member_numerators(q, num_ok, den_ok, coprime_only, family.predicate, scratch)
+        ps = scratch[:count].copy()
+        qs = np.full(count, q, np.int64)
+        ws, pos, lh = tally_pairs_serial(ps, qs, cap, max_k)
+        word_sums += ws
+        position_sums += pos
+        length_hist = lh if length_hist is None else length_hist + lh
+        per_den[i, 0] = count
+        per_den[i, 1] = pos[1, 0]
+        for d in range(1, ROW_DIGITS + 1):
+            per_den[i, 1 + d] = ws[d - 1, 0] if d < cap else -1
+        if good_eps and count:
+            edges = np.array([q, q + 1], np.uint64)
+            counts = goodness_pairs(ps.astype(np.uint64), qs.astype(np.uint64), edges, goodness["good_k"],
+                                    goodness["good_min_len"], eps, required, 1)
+            good[i] = counts[0, 1:]
+    seconds = time.perf_counter() - t0
+    tables = tables_from_arrays(cap, max_k, word_sums, position_sums, length_hist, per_den, q_lo)
+    if good is not None:
+        qs_all = np.arange(q_lo, q_hi + 1)
+        tables["goodness"] = goodness_table(qs_all, qs_all, good_eps, per_den[:, 0], good)
     return BlockResult(tables, int(per_den[:, 0].sum()), int(per_den[:, 1].sum()), seconds)

@@ -35,6 +35,9 @@ def _add_sweep(sub):
     p.add_argument("--blocks", default=None, help="number of blocks (default: by estimated work)")
     p.add_argument("--threads", default=None, help="Numba threads (default: all cores)")
     p.add_argument("--out", required=True, help="run directory (created; resumed if it holds the same run)")
+    p.add_argument("--predicate", default=None,
+                   help="module:function of a @numba.njit (p, q) -> bool that narrows the family "
+                        "(the module is imported from the Python path or the current directory)")
     p.add_argument("--good-eps", default=None,
                    help="count (eps, k)-good members per denominator for these tolerances, e.g. 0.05,0.1,0.2")
     p.add_argument("--good-k", default="1", help="goodness uses words of length <= K (1..6; default 1)")
@@ -49,7 +52,8 @@ def _cmd_sweep(args) -> int:
     t0 = time.perf_counter()
     run = sweep(args.max_den, args.out, min_den=args.min_den, family=args.family, cap=args.cap,
                 words=args.words, blocks=args.blocks, threads=args.threads, quiet=args.quiet,
-                good_eps=args.good_eps, good_k=args.good_k, good_min_len=args.good_min_len)
+                good_eps=args.good_eps, good_k=args.good_k, good_min_len=args.good_min_len,
+                predicate=args.predicate)
     seconds = time.perf_counter() - t0
     records = [run.store.read_record(b["id"]) for b in run.store.plan]
     members = sum(r["members"] for r in records)

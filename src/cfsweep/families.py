@@ -14,7 +14,7 @@ The canonical text is the base followed by the non-``any`` classes in the order 
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -27,11 +27,15 @@ BASES = ("all", "reduced")
 
 @dataclass(frozen=True)
 class Family:
-    """A family of fractions: base (``all``/``reduced``) and numerator/denominator classes."""
+    """A family of fractions: base (``all``/``reduced``), numerator/denominator classes, and an
+    optional user predicate (see :mod:`cfsweep.predicates`), whose identity "module:function" shows in
+    the canonical text as ``pred=module:function``."""
 
     base: str = "all"
     num: str = "any"
     den: str = "any"
+    predicate: object = field(default=None, compare=False, hash=False, repr=False)
+    predicate_name: str | None = None
 
     @property
     def canonical(self) -> str:
@@ -40,6 +44,8 @@ class Family:
             parts.append(f"num={self.num}")
         if self.den != "any":
             parts.append(f"den={self.den}")
+        if self.predicate_name:
+            parts.append(f"pred={self.predicate_name}")
         return ",".join(parts)
 
     @property
@@ -61,6 +67,8 @@ class Family:
         import math
 
         if not (1 <= p < q):
+            return False
+        if self.predicate is not None and not self.predicate(p, q):
             return False
         if self.coprime_only and math.gcd(p, q) != 1:
             return False
@@ -99,6 +107,12 @@ def parse_family(text: str | Family) -> Family:
     """Parse the family grammar (see module docstring); raise UsageError naming the bad term."""
     if isinstance(text, Family):
         return text
+    if isinstance(text, str) and "pred=" in text:
+        from .predicates import family_with_predicate
+
+        rest = ",".join(t for t in text.split(",") if not t.strip().startswith("pred="))
+        spec = [t.strip()[5:] for t in text.split(",") if t.strip().startswith("pred=")][0]
+        return family_with_predicate(parse_family(rest or "all"), spec)
     allowed = "allowed: all, reduced, squarefree, prime, num=CLASS, den=CLASS with CLASS in any|squarefree|prime"
     if not isinstance(text, str) or not text.strip():
         raise UsageError(f"family {text!r} is empty; {allowed}")
@@ -134,6 +148,11 @@ def expected_members(family: Family, q_lo: int, q_hi: int) -> list[int]:
     ``all``: q - 1; ``reduced``: Euler's phi(q) from a totient sieve. Numerator/denominator classes are
     counted from their sieves (see :func:`_class_counts`).
     """
+    if family.predicate is not None:
+        from .kernels.predicate import count_members
+
+        num_ok, den_ok, coprime_only = family.membership(q_hi)
+        return [int(v) for v in count_members(q_lo, q_hi, num_ok, den_ok, coprime_only, family.predicate)]
     if family.num == "any" and family.den == "any":
         if family.base == "all":
             return [q - 1 for q in range(q_lo, q_hi + 1)]

@@ -50,11 +50,15 @@ def open_run(path) -> Run:
 
 
 def sweep_params(max_den, min_den=2, family="all", cap=DEFAULT_CAP, words=DEFAULT_WORDS, blocks=None,
-                 good_eps=None, good_k=1, good_min_len=None) -> dict:
+                 good_eps=None, good_k=1, good_min_len=None, predicate=None) -> dict:
     """Validate sweep parameters; return the canonical parameter dict stored in the manifest."""
     max_den = check_range(parse_int(max_den, "--max-den"), "--max-den", 2, MAX_SWEEP_DEN)
     min_den = check_range(parse_int(min_den, "--min-den"), "--min-den", 2, max_den)
     fam = parse_family(family)
+    if predicate is not None:
+        from .predicates import family_with_predicate
+
+        fam = family_with_predicate(fam, predicate)
     cap = check_range(parse_int(cap, "--cap"), "--cap", 2, MAX_CAP)
     words = check_range(parse_int(words, "--words"), "--words", 1, MAX_WORD_LENGTH)
     check_word_table(cap, words)
@@ -69,6 +73,10 @@ def sweep_params(max_den, min_den=2, family="all", cap=DEFAULT_CAP, words=DEFAUL
         "words": words,
         "blocks": blocks,
     }
+    if fam.predicate is not None:
+        from .predicates import identity
+
+        params["predicate"] = identity(fam.predicate)
     params.update(goodness_params(good_eps, good_k, good_min_len))
     return params
 
@@ -94,9 +102,23 @@ def block_kinds(params: dict) -> list[str]:
     return kinds
 
 
+def run_family(params: dict) -> Family:
+    """The family of a run, with its predicate resolved and checked against the manifest's source hash."""
+    fam = parse_family(params["family"])
+    recorded = params.get("predicate")
+    if recorded is not None:
+        from .predicates import identity
+
+        now = identity(fam.predicate)["source_sha256"]
+        if recorded.get("source_sha256") and now and now != recorded["source_sha256"]:
+            raise UsageError(f"predicate {recorded['name']} changed since the run was planned (source sha256 "
+                             f"{now[:12]} vs {recorded['source_sha256'][:12]}); allowed: the same predicate")
+    return fam
+
+
 def plan_blocks(params: dict) -> list[dict]:
     """The block plan with the member count each block must hold (counted, not expanded)."""
-    fam = parse_family(params["family"])
+    fam = run_family(params)
     plan = []
     for block in make_plan(params["min_den"], params["max_den"], params["blocks"]):
         entry = block.to_json()
@@ -112,7 +134,7 @@ def check_threads(threads) -> int | None:
 
 
 def sweep(max_den, out, *, min_den=2, family="all", cap=DEFAULT_CAP, words=DEFAULT_WORDS, blocks=None,
-          threads=None, quiet=True, good_eps=None, good_k=1, good_min_len=None) -> Run:
+          threads=None, quiet=True, good_eps=None, good_k=1, good_min_len=None, predicate=None) -> Run:
     """Sweep every member p/q of ``family`` with min_den <= q <= max_den into the run directory ``out``.
 
     Parameters: ``max_den`` (2 .. 2^31-1), ``min_den`` (2 .. max_den), ``family`` (see
@@ -121,11 +143,12 @@ def sweep(max_den, out, *, min_den=2, family="all", cap=DEFAULT_CAP, words=DEFAU
     ``threads`` (Numba threads; default all). ``good_eps`` (tolerances 0 < eps < 1, a list or a
     comma-separated string), ``good_k`` (word lengths 1..6, default 1) and ``good_min_len`` (default
     good_k) switch on per-denominator counts of (eps, k)-good members (see :mod:`cfsweep.goodness`).
-    Completed blocks of an earlier identical call are kept;
+    ``predicate``: a Numba-jitted ``(p, q) -> bool`` (or "module:function") narrowing the family;
+    checked before any block runs. Completed blocks of an earlier identical call are kept;
     bad or missing ones are (re)computed. A directory holding a run of other parameters is refused.
     Returns the :class:`Run`.
     """
-    params = sweep_params(max_den, min_den, family, cap, words, blocks, good_eps, good_k, good_min_len)
+    params = sweep_params(max_den, min_den, family, cap, words, blocks, good_eps, good_k, good_min_len, predicate)
     threads = check_threads(threads)
     RunStore.check_output_path(Path(out))
     plan = plan_blocks(params)
@@ -136,7 +159,7 @@ def sweep(max_den, out, *, min_den=2, family="all", cap=DEFAULT_CAP, words=DEFAU
             store.discard_block(block["id"])
         if status.state != "complete":
             pending.append(block)
-    run_local(store, pending, parse_family(params["family"]), threads, quiet=quiet)
+    run_local(store, pending, run_family(params), threads, quiet=quiet)
     return Run(store)
 
 

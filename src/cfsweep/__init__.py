@@ -12,7 +12,11 @@ from .families import Family, parse_family  # noqa: E402
 from .runs import Run, open_run, sweep  # noqa: E402
 from .tables import analyse, frequency_table  # noqa: E402
 from .stream import analyse_stream, decimals, iter_stream, write_stream  # noqa: E402
+from .exact import exact_counts, exact_table  # noqa: E402
+from .runs import sample  # noqa: E402
+from .good import good_proportion  # noqa: E402
 
 __all__ = ["sweep", "open_run", "Run", "frequency_table", "analyse", "parse_family", "Family",
            "UsageError", "RunIntegrityError", "__version__",
-           "iter_stream", "write_stream", "analyse_stream", "decimals"]
+           "iter_stream", "write_stream", "analyse_stream", "decimals", "exact_counts", "exact_table",
+           "sample", "good_proportion"]

@@ -7,10 +7,10 @@ from pathlib import Path
 import numba
 
 from .errors import UsageError
-from .executors import run_local
+from .executors import interrupt_on_sigterm, parse_cluster, parse_shard, run_dask, run_local, shard_blocks
 from .families import Family, expected_members, parse_family
 from .plan import MAX_BLOCKS, make_plan
-from .store import RunStore
+from .store import RunStore, full_disk_as_error, sweep_lock
 from .validate import (MAX_CAP, MAX_SWEEP_DEN, MAX_WORD_LENGTH, check_range, check_word_table,
                        parse_int)
 
@@ -87,26 +87,45 @@ def check_threads(threads) -> int | None:
 
 
 def sweep(max_den, out, *, min_den=2, family="all", cap=DEFAULT_CAP, words=DEFAULT_WORDS, blocks=None,
-          threads=None, quiet=True) -> Run:
+          threads=None, quiet=True, cluster=None, shard=None) -> Run:
     """Sweep every member p/q of ``family`` with min_den <= q <= max_den into the run directory ``out``.
 
     Parameters: ``max_den`` (2 .. 2^31-1), ``min_den`` (2 .. max_den), ``family`` (see
     :mod:`cfsweep.families`), ``cap`` D (digits >= D pooled as "D+", 2 .. 65536), ``words`` K (word lengths
     1..K; the word table sum_k D^k must stay <= 2^24 rows), ``blocks`` (default: by estimated work),
-    ``threads`` (Numba threads; default all). Completed blocks of an earlier identical call are kept;
-    bad or missing ones are (re)computed. A directory holding a run of other parameters is refused.
-    Returns the :class:`Run`.
+    ``threads`` (Numba threads; default all; with a cluster: per task, default by the rule in
+    :mod:`cfsweep.executors`). ``cluster``: None (this process), ``"local:N"``, ``"tcp://HOST:PORT"`` or a
+    ``distributed.Client``. ``shard``: ``"I/N"`` or (I, N) to compute only the blocks with index = I
+    (mod N), for batch job arrays; the run is then complete once every shard has run.
+    Completed blocks of an earlier identical call are kept; bad or missing ones are (re)computed. A
+    directory holding a run of other parameters is refused, as is a second sweep of a directory that a
+    sweep is writing (see :func:`cfsweep.store.sweep_lock`). Returns the :class:`Run`.
     """
     params = sweep_params(max_den, min_den, family, cap, words, blocks)
     threads = check_threads(threads)
-    RunStore.check_output_path(Path(out))
+    shard = parse_shard(shard)
+    cluster_spec = parse_cluster(cluster)
+    if shard is not None and cluster_spec is not None:
+        raise UsageError("--shard and --cluster exclude each other; allowed: one of them (a shard job runs "
+                         "its blocks locally; a Dask cluster runs all blocks)")
+    out = Path(out)
+    RunStore.check_output_path(out)
     plan = plan_blocks(params)
-    store = RunStore.create_or_resume(Path(out), "sweep", params, plan)
-    pending = []
-    for block, status in zip(store.plan, store.statuses()):
-        if status.state == "bad":
-            store.discard_block(block["id"])
-        if status.state != "complete":
-            pending.append(block)
-    run_local(store, pending, parse_family(params["family"]), threads, quiet=quiet)
+    with interrupt_on_sigterm(), sweep_lock(out, shard), full_disk_as_error(out):
+        store = RunStore.create_or_resume(out, "sweep", params, plan, remove_stale_temp=shard is None)
+        selected = shard_blocks(store.plan, shard)
+        # Under the lock nobody else writes these blocks: leftovers of killed writers can go.
+        store.remove_temp_files(None if shard is None else [b["id"] for b in selected])
+        pending = []
+        for block in selected:
+            status = store.check_block(block)
+            if status.state == "bad":
+                store.discard_block(block["id"])
+            if status.state != "complete":
+                pending.append(block)
+        if cluster_spec is None:
+            run_local(store, pending, parse_family(params["family"]), threads, quiet=quiet)
+        else:
+            run_dask(store, pending, cluster_spec, threads, quiet=quiet)
+            store.remove_temp_files()  # writers lost mid-block leave theirs; every task has finished
     return Run(store)

@@ -242,7 +242,7 @@ def dask_client(spec):
     if kind == "local":
         # One Dask thread per worker process; Numba threads fill the cores (see the module docstring).
         cluster = distributed.LocalCluster(n_workers=value, threads_per_worker=1, processes=True,
-                                           dashboard_address=None, silence_logs=40)
+                                           dashboard_address=":0", silence_logs=40)
         try:
             with distributed.Client(cluster) as client:
                 yield client

@@ -111,7 +111,7 @@ def sweep(max_den, out, *, min_den=2, family="all", cap=DEFAULT_CAP, words=DEFAU
     out = Path(out)
     RunStore.check_output_path(out)
     plan = plan_blocks(params)
-    with interrupt_on_sigterm(), sweep_lock(out, shard), full_disk_as_error(out):
+    with interrupt_on_sigterm(), full_disk_as_error(out), sweep_lock(out, shard):
         store = RunStore.create_or_resume(out, "sweep", params, plan, remove_stale_temp=shard is None)
         selected = shard_blocks(store.plan, shard)
         # Under the lock nobody else writes these blocks: leftovers of killed writers can go.

@@ -485,6 +485,9 @@ def sweep_lock(run_dir: Path, shard: tuple[int, int] | None = None):
             _record_holder(run_fd)
             recorded.append(run_fd)
         else:
+            # Holding it shared proves no whole-run sweep holds it: a holder line there is stale
+            # (left by a sweep killed with SIGKILL).
+            _clear_holder(run_fd)
             (run_dir / LOCK_DIR).mkdir(exist_ok=True)
             shard_fd = os.open(run_dir / LOCK_DIR / shard_lock_name(shard), os.O_RDWR | os.O_CREAT, 0o644)
             opened.append(shard_fd)

@@ -15,8 +15,9 @@ from .stream import analyse_stream, decimals, iter_stream, write_stream  # noqa:
 from .exact import exact_counts, exact_table  # noqa: E402
 from .runs import sample  # noqa: E402
 from .good import good_proportion  # noqa: E402
+from .status import run_status  # noqa: E402
 
 __all__ = ["sweep", "open_run", "Run", "frequency_table", "analyse", "parse_family", "Family",
            "UsageError", "RunIntegrityError", "__version__",
            "iter_stream", "write_stream", "analyse_stream", "decimals", "exact_counts", "exact_table",
-           "sample", "good_proportion"]
+           "sample", "good_proportion", "run_status"]

@@ -1,7 +1,9 @@
 """Command line: a thin face over the Python API (``cfsweep --help``).
 
-Exit codes: 0 success; 2 bad input (one line naming the value and the allowed range); 1 a run that is
-incomplete or inconsistent; 130 interrupted (completed blocks are kept; rerun to resume).
+Exit codes: 0 success; 2 bad input (one line naming the value and the allowed range), including a run
+directory that another sweep is writing; 1 a run that is incomplete or inconsistent, or a full disk
+(completed blocks are kept); 130 interrupted by Ctrl-C or SIGTERM (completed blocks are kept; rerun to
+resume).
 """
 from __future__ import annotations
 
@@ -33,7 +35,8 @@ def _add_sweep(sub):
     p.add_argument("--words", default="3", help="longest word length K counted (default 3)")
     p.add_argument("--cap", default="32", help="digits >= cap are pooled as 'cap+' (2 .. 65536; default 32)")
     p.add_argument("--blocks", default=None, help="number of blocks (default: by estimated work)")
-    p.add_argument("--threads", default=None, help="Numba threads (default: all cores)")
+    p.add_argument("--threads", default=None, help="Numba threads (default: all cores; with --cluster: "
+                   "per task, default cores divided among the Dask threads of a host)")
     p.add_argument("--out", required=True, help="run directory (created; resumed if it holds the same run)")
     p.add_argument("--predicate", default=None,
                    help="module:function of a @numba.njit (p, q) -> bool that narrows the family "
@@ -42,6 +45,11 @@ def _add_sweep(sub):
                    help="count (eps, k)-good members per denominator for these tolerances, e.g. 0.05,0.1,0.2")
     p.add_argument("--good-k", default="1", help="goodness uses words of length <= K (1..6; default 1)")
     p.add_argument("--good-min-len", default=None, help="good members have length >= L (default: good-k)")
+    p.add_argument("--cluster", default=None, help="run the blocks on Dask: tcp://HOST:PORT (a running "
+                   "scheduler; the run directory must be shared with its workers) or local:N (N worker "
+                   "processes here); see docs/cluster.md")
+    p.add_argument("--shard", default=None, help="I/N: compute only the blocks with index = I (mod N), "
+                   "0 <= I < N, for job arrays; the run is complete once all N shards have run")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.set_defaults(handler=_cmd_sweep)
 
@@ -53,14 +61,46 @@ def _cmd_sweep(args) -> int:
     run = sweep(args.max_den, args.out, min_den=args.min_den, family=args.family, cap=args.cap,
                 words=args.words, blocks=args.blocks, threads=args.threads, quiet=args.quiet,
                 good_eps=args.good_eps, good_k=args.good_k, good_min_len=args.good_min_len,
-                predicate=args.predicate)
-    seconds = time.perf_counter() - t0
-    records = [run.store.read_record(b["id"]) for b in run.store.plan]
+                predicate=args.predicate, cluster=args.cluster, shard=args.shard)
+    return _report_run(run, time.perf_counter() - t0, args.shard)
+
+
+def _report_run(run, seconds: float, shard) -> int:
+    """One line on what the run directory holds now, and the next command."""
+    records = [r for r in (run.store.read_record(b["id"]) for b in run.store.plan) if r is not None]
     members = sum(r["members"] for r in records)
     pqs = sum(r["partial_quotients"] for r in records)
-    print(f"run {run.path}: family {run.params['family']}, {len(records)} blocks complete, "
-          f"{members:,} fractions, {pqs:,} partial quotients ({seconds:.1f} s for this call)")
-    print(f"next: cfsweep table {run.path}")
+    of = "" if len(records) == len(run.store.plan) else f" of {len(run.store.plan)}"
+    where = f" (shard {shard})" if shard else ""
+    unit = "samples" if run.store.manifest["kind"] == "sample" else "fractions"
+    draws = (f", {sum(r.get('attempts', 0) for r in records):,} draws"
+             if run.store.manifest["kind"] == "sample" else "")
+    print(f"run {run.path}{where}: family {run.params['family']}, {len(records)}{of} blocks complete, "
+          f"{members:,} {unit}, {pqs:,} partial quotients{draws} ({seconds:.1f} s for this call)")
+    if of:
+        print(f"next: the other shards, then cfsweep table {run.path} (progress: cfsweep status {run.path})")
+    else:
+        print(f"next: cfsweep table {run.path}")
+    return 0
+
+
+def _add_status(sub):
+    p = sub.add_parser("status", help="blocks complete/missing/bad, work done, throughput and ETA of a run",
+                       description="Reads the manifest and completion records (verifying block files by "
+                                   "sha256 unless --quick); safe while a sweep or shard jobs are running.")
+    p.add_argument("run", help="run directory")
+    p.add_argument("--json", action="store_true", help="print the status as one JSON object")
+    p.add_argument("--quick", action="store_true", help="check block files by size only, not sha256")
+    p.set_defaults(handler=_cmd_status)
+
+
+def _cmd_status(args) -> int:
+    import json
+
+    from .status import render_status, run_status
+
+    status = run_status(args.run, deep=not args.quick)
+    print(json.dumps(status, indent=2, sort_keys=True) if args.json else render_status(status))
     return 0
 
 
@@ -78,6 +118,8 @@ def _add_sample(sub):
     p.add_argument("--words", default="3", help="longest word length K counted (default 3)")
     p.add_argument("--cap", default="32", help="digits >= cap are pooled as 'cap+' (default 32)")
     p.add_argument("--block-samples", default=None, help="samples per block (default 2^20)")
+    p.add_argument("--cluster", default=None, help="run the blocks on Dask: tcp://HOST:PORT or local:N")
+    p.add_argument("--shard", default=None, help="I/N: only the blocks with index = I (mod N), 0 <= I < N")
     p.add_argument("--good-eps", default=None, help="tolerances for goodness counts, e.g. 0.05,0.1,0.2")
     p.add_argument("--good-k", default="1", help="goodness word length K (1..6; default 1)")
     p.add_argument("--good-min-len", default=None, help="minimum length of a good member (default: good-k)")
@@ -94,14 +136,8 @@ def _cmd_sample(args) -> int:
     run = sample(args.out, den_range=args.den_range, scan=args.scan, samples=args.samples, seed=args.seed,
                  family=args.family, cap=args.cap, words=args.words, block_samples=args.block_samples,
                  threads=args.threads, quiet=args.quiet, good_eps=args.good_eps, good_k=args.good_k,
-                 good_min_len=args.good_min_len)
-    records = [run.store.read_record(b["id"]) for b in run.store.plan]
-    print(f"run {run.path}: family {run.params['family']}, {len(records)} blocks complete, "
-          f"{sum(r['members'] for r in records):,} samples, {sum(r['partial_quotients'] for r in records):,} "
-          f"partial quotients, {sum(r['attempts'] for r in records):,} draws "
-          f"({time.perf_counter() - t0:.1f} s for this call)")
-    print(f"next: cfsweep table {run.path}")
-    return 0
+                 good_min_len=args.good_min_len, cluster=args.cluster, shard=args.shard)
+    return _report_run(run, time.perf_counter() - t0, args.shard)
 
 
 def _add_table(sub):
@@ -221,6 +257,7 @@ def build_parser() -> argparse.ArgumentParser:
     _add_sample(sub)
     _add_table(sub)
     _add_good(sub)
+    _add_status(sub)
     _add_demo(sub)
     for name in ("cli_exact", "cli_stream"):
         try:

@@ -109,3 +109,10 @@ sys.exit(main(["sweep", "--max-den", "40", "--predicate", "chpred:f", "--out", {
     import sys
     proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
     assert proc.returncode == 2 and "predicate" in proc.stderr and "other parameters" in proc.stderr
+
+
+def test_stream_refuses_predicate_family():
+    from cfsweep.stream import stream_prefix
+
+    with pytest.raises(UsageError, match="predicate families are not supported"):
+        stream_prefix(f"all,pred={__name__}:coprime", 10)

@@ -118,6 +118,9 @@ class StreamReader:
 
     def __init__(self, family: str | Family = "all", start: StreamCursor | None = None):
         self.family = parse_family(family)
+        if self.family.predicate is not None:
+            raise UsageError(f"family {self.family.canonical!r}: streams of predicate families are not "
+                             "supported; allowed: all/reduced with num=/den= classes")
         start = START if start is None else _check_cursor(start)
         if start != START and not self.family.contains(start.p, start.q):
             raise UsageError(f"start cursor {start}: {start.p}/{start.q} is not in family {self.family}")

@@ -1,7 +1,7 @@
 """Layered chain: Fraction and sympy expansions == Numba serial kernel == parallel kernel == pipeline."""
 import numpy as np
 import pytest
-from hypothesis import given, strategies as st
+from hypothesis import given, settings, strategies as st
 
 from cfsweep import frequency_table, sweep
 from cfsweep.families import parse_family
@@ -53,10 +53,12 @@ def test_parallel_kernel_matches_serial(q_lo, span, cap, max_k, chunks, family):
         np.testing.assert_array_equal(x, y)
 
 
-@pytest.mark.parametrize("family", ["all", "reduced", "squarefree"])
-def test_pipeline_matches_plain_python(tmp_path, family):
-    q_max, cap, max_k = 70, 6, 3
-    run = sweep(q_max, tmp_path / "run", family=family, cap=cap, words=max_k, blocks=5)
+@settings(max_examples=12)
+@given(family=st.sampled_from(["all", "reduced", "squarefree", "num=prime,den=squarefree"]),
+       q_max=st.integers(2, 90), cap=st.integers(2, 9), max_k=st.integers(1, 3), blocks=st.integers(1, 7))
+def test_pipeline_matches_plain_python(tmp_path_factory, family, q_max, cap, max_k, blocks):
+    tmp_path = tmp_path_factory.mktemp("pipeline")
+    run = sweep(q_max, tmp_path / "run", family=family, cap=cap, words=max_k, blocks=blocks)
     table = frequency_table(run).to_pydict()
     f = parse_family(family)
     ref = reference_sweep(2, q_max, f.base, f.num, f.den, cap, max_k)

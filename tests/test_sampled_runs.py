@@ -135,3 +135,13 @@ def test_sample_bad_counts(tmp_path, capsys):
                          (["--samples", "5", "--seed", "-1"], "0 <= --seed")):
         assert main(["sample", "--den-range", "10:20", *args, "--out", str(tmp_path / "x")]) == 2
         assert needle in capsys.readouterr().err
+
+
+def test_shards_of_a_sampled_run_equal_the_whole(tmp_path):
+    whole = sample(tmp_path / "whole", den_range="1e9:2e9", samples=4000, seed=21, cap=8, words=2,
+                   block_samples=1000)
+    for i in range(3):
+        sample(tmp_path / "sharded", den_range="1e9:2e9", samples=4000, seed=21, cap=8, words=2,
+               block_samples=1000, shard=f"{i}/3")
+    from cfsweep.runs import open_run
+    assert _integers(open_run(tmp_path / "sharded")) == _integers(whole)

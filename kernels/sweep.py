@@ -71,31 +71,40 @@ _U2_53 = np.uint64(FLOAT64_EXACT)
 
 
 @serial
-def _next_member(state, q_hi, q_step, num_ok, den_ok):
-    """Advance ``state = [q, p]`` to the next admissible pair after it; False when none is left."""
+def _next_half_member(state, q_hi, q_step, num_ok, den_ok):
+    """Advance ``state = [q, p, flags]`` to the next p with 2p < q where p or q - p is admissible.
+
+    flags bit 0: p/q is a member, bit 1: its mirror (q - p)/q is a member. On a change of q the middle
+    fraction p = q/2 (q even) is not visited here: :func:`_book_middle` books it.
+    """
     has_num = num_ok.shape[0] > 0
     has_den = den_ok.shape[0] > 0
     q = state[0]
     p = state[1] + 1
     while q <= q_hi:
         if (not has_den) or den_ok[q] != 0:
-            if has_num:
-                while p < q and num_ok[p] == 0:
-                    p += 1
-            if p < q:
-                state[0] = q
-                state[1] = p
-                return True
+            while 2 * p < q:
+                if has_num:
+                    flags = np.int64(num_ok[p] != 0) | (np.int64(num_ok[q - p] != 0) << 1)
+                else:
+                    flags = np.int64(3)
+                if flags != 0:
+                    state[0] = q
+                    state[1] = p
+                    state[2] = flags
+                    return True
+                p += 1
         q += q_step
         p = 1
     state[0] = q
     state[1] = 0
+    state[2] = 0
     return False
 
 
 @serial
 def _record_words(ring, mask, lane, t_first, n, k_min, max_k, cap, offsets, codes, wtab, stamp):
-    """Add the words of lengths k_min..max_k of one finished rational to ``wtab``.
+    """Add the words of lengths k_min..max_k of one rational to ``wtab`` (used by tally_pairs).
 
     ``ring[(t_first + j) & mask, lane]`` is its j-th symbol. ``wtab`` rows hold, per word: sum c,
     sum of the prior count at each occurrence (so sum c**2 = sum c + 2 * that), sum m, and a scratch
@@ -120,6 +129,76 @@ def _record_words(ring, mask, lane, t_first, n, k_min, max_k, cap, offsets, code
 
 
 @serial
+def _word_occurrence(wtab, idx, stamp, delta, m):
+    """Add (delta = +1) or remove (delta = -1) one occurrence of word row ``idx`` in rational ``stamp``."""
+    v = wtab[idx, 3]
+    count = (v & 255) if (v >> 8) == stamp else 0
+    if delta > 0:
+        wtab[idx, 1] += count
+        count += 1
+    else:
+        count -= 1
+        wtab[idx, 1] -= count
+    wtab[idx, 3] = (stamp << 8) | count
+    wtab[idx, 0] += delta
+    wtab[idx, 2] += delta * m
+
+
+@serial
+def _record_words_pair(ring, lane, t_first, n, max_k, cap, offsets, codes, wtab, stamp,
+                       own, mirror, sym_mirror2):
+    """Words of lengths 2..max_k of p/q (weight ``own``) and of its mirror (weight ``mirror``).
+
+    The ring holds the symbols s_1..s_n of p/q (2p < q, so a1 >= 2); the mirror (q - p)/q has the
+    symbols 0, ``sym_mirror2``, s_2, ..., s_n. Every occurrence of p/q except the words at its first
+    position is also an occurrence in the mirror at one position later, whose m is one larger, so the
+    mirror is booked as p/q's occurrences plus its two new first positions minus p/q's first ones.
+    The scratch counts first hold p/q's counts, then the mirror's, so the prior-count sums of both
+    are exact.
+    """
+    weight = own + mirror
+    for k in range(max_k + 1):
+        codes[k] = 0
+    for j in range(n):
+        s = np.int64(ring[(t_first + j) & RING_MASK, lane])
+        top = max_k if j + 1 >= max_k else j + 1
+        for k in range(top, 1, -1):
+            code = codes[k - 1] * cap + s
+            codes[k] = code
+            idx = offsets[k] + code
+            v = wtab[idx, 3]
+            before = (v & 255) if (v >> 8) == stamp else 0
+            wtab[idx, 3] = (stamp << 8) | (before + 1)
+            wtab[idx, 0] += weight
+            wtab[idx, 1] += weight * before
+            wtab[idx, 2] += own * (n - k + 1) + mirror * (n - k + 2)
+        codes[1] = s
+    if mirror == 0:
+        return
+    for k in range(2, max_k + 1):
+        m_mirror = n + 2 - k
+        if m_mirror <= 0:
+            break
+        if k <= n:
+            # the mirror lacks p/q's word at position 0
+            code = np.int64(0)
+            for j in range(k):
+                code = code * cap + np.int64(ring[(t_first + j) & RING_MASK, lane])
+            _word_occurrence(wtab, offsets[k] + code, stamp, -1, m_mirror)
+        # the mirror's word at position 0: 0, sym_mirror2, s_2, ..., s_(k-1)
+        code = sym_mirror2
+        for j in range(1, k - 1):
+            code = code * cap + np.int64(ring[(t_first + j) & RING_MASK, lane])
+        _word_occurrence(wtab, offsets[k] + code, stamp, 1, m_mirror)
+        if m_mirror >= 2:
+            # the mirror's word at position 1: sym_mirror2, s_2, ..., s_k
+            code = sym_mirror2
+            for j in range(1, k):
+                code = code * cap + np.int64(ring[(t_first + j) & RING_MASK, lane])
+            _word_occurrence(wtab, offsets[k] + code, stamp, 1, m_mirror)
+
+
+@serial
 def _words_to_sums(wtab, first_row, word_sums):
     for idx in range(first_row, word_sums.shape[0]):
         word_sums[idx, 0] += wtab[idx, 0]
@@ -128,13 +207,110 @@ def _words_to_sums(wtab, first_row, word_sums):
 
 
 @serial
+def _packed_count(small, mid, high, sym):
+    """Count of symbol ``sym`` held in a lane's packed counters."""
+    if sym < 8:
+        return np.int64((small >> (np.uint64(sym) * _U8)) & _U255)
+    if sym < 24:
+        return np.int64((mid >> (np.uint64(sym - 8) * _U4)) & _U15)
+    return np.int64((high >> (np.uint64(sym - 24) * _U4)) & _U15)
+
+
+@serial
+def _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_own, b_mirror, cap,
+                    sym_total, sym_weighted, sym_squares, length_hist, per_den):
+    """Book ``nb`` buffered finished pairs (p/q and its mirror) into the digit sums.
+
+    Per pair: packed counts of p/q, its length n, its per-denominator row, the symbol index of its
+    first digit a1 (``cap`` when a1 > cap, which tells the mirror's second symbol), and the weights
+    0/1 of p/q and of the mirror (length n + 1, counts +1 at symbol 0, -1 at sym1, +1 at the symbol
+    of a1 - 1). The common symbols 0..7 are summed by loops over the buffer that LLVM vectorises.
+    """
+    for sym in range(8):
+        shift = np.uint64(sym) * _U8
+        total = np.int64(0)
+        weighted = np.int64(0)
+        squares = np.int64(0)
+        for i in range(nb):
+            c = np.int64((b_small[i] >> shift) & _U255)
+            w = b_own[i] + b_mirror[i]
+            total += c * w
+            weighted += c * (w * b_n[i] + b_mirror[i])
+            squares += c * c * w
+        sym_total[sym] += total
+        sym_weighted[sym] += weighted
+        sym_squares[sym] += squares
+    for i in range(nb):
+        own = b_own[i]
+        mirror = b_mirror[i]
+        w = own + mirror
+        n = b_n[i]
+        v0 = b_small[i]
+        length_hist[n] += own
+        length_hist[n + 1] += mirror
+        row = b_row[i]
+        per_den[row, 0] += w
+        per_den[row, 1] += w * n + mirror
+        for d in range(ROW_DIGITS):
+            per_den[row, 2 + d] += w * np.int64((v0 >> (np.uint64(d) * _U8)) & _U255)
+        for part in range(2):
+            v = b_mid[i] if part == 0 else b_high[i]
+            sym = 8 + 16 * part
+            while v != _U0:
+                c = np.int64(v & _U15)
+                if c != 0:
+                    sym_total[sym] += c * w
+                    sym_weighted[sym] += c * (w * n + mirror)
+                    sym_squares[sym] += c * c * w
+                v >>= _U4
+                sym += 1
+        if mirror != 0:
+            # the mirror's counts differ at three symbols: +1 at 0, -1 at sym1, +1 at sym2; apply the
+            # changes one at a time so that coinciding symbols are handled by the same formula
+            sym1 = b_sym1[i]
+            pooled = sym1 == cap
+            if pooled:
+                sym1 = cap - 1
+            sym2 = cap - 1 if pooled else sym1 - 1
+            c0 = _packed_count(v0, b_mid[i], b_high[i], 0)
+            c1 = _packed_count(v0, b_mid[i], b_high[i], sym1)
+            c2 = _packed_count(v0, b_mid[i], b_high[i], sym2)
+            m = n + 1
+            # +1 at symbol 0
+            sym_total[0] += 1
+            sym_weighted[0] += m
+            sym_squares[0] += 2 * c0 + 1
+            c0 += 1
+            # -1 at sym1 (sym1 >= 1, since a1 >= 2)
+            sym_total[sym1] -= 1
+            sym_weighted[sym1] -= m
+            sym_squares[sym1] += 1 - 2 * c1
+            c1 -= 1
+            # +1 at sym2, whose count may be c0 or c1 updated above
+            now = c0 if sym2 == 0 else (c1 if sym2 == sym1 else c2)
+            sym_total[sym2] += 1
+            sym_weighted[sym2] += m
+            sym_squares[sym2] += 2 * now + 1
+            per_den[row, 2] += 1
+            if sym1 < ROW_DIGITS:
+                per_den[row, 2 + sym1] -= 1
+            if sym2 < ROW_DIGITS:
+                per_den[row, 2 + sym2] += 1
+
+
+BUFFER = 512
+
+
+@serial
 def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap, max_k,
                 int_proto, float_proto, word_sums, length_hist, per_den):
     """Lockstep sweep of q = q_first, q_first + q_step, ... <= q_hi (cap <= PACKED_SYMBOLS).
 
-    Adds into ``word_sums`` and ``length_hist``; adds members, partial quotients and digit counts to
-    ``per_den[q - q_base]``. ``int_proto``/``float_proto`` only choose the lane types (int32/float32
-    for q_hi < 2**24, int64/float64 beyond).
+    Only p with 2p < q are expanded (see the module docstring: the mirror (q - p)/q is booked from
+    the same expansion); their first quotient is taken in scalar code when a lane is refilled, so the
+    lanes run from the second partial quotient on. Adds into ``word_sums`` and ``length_hist``; adds
+    members, partial quotients and digit counts to ``per_den[q - q_base]``. ``int_proto``/
+    ``float_proto`` only choose the lane types (float32 for q_hi < 2**24, float64 beyond).
     """
     xf = np.empty(LANES, float_proto.dtype)
     yf = np.empty(LANES, float_proto.dtype)
@@ -143,10 +319,14 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
     mid = np.zeros(LANES, np.uint64)
     high = np.zeros(LANES, np.uint64)
     t_first = np.zeros(LANES, np.int64)
-    lane_q = np.zeros(LANES, np.int64)
+    lane_row = np.zeros(LANES, np.int64)
+    lane_sym1 = np.zeros(LANES, np.int64)
+    lane_own = np.zeros(LANES, np.int64)
+    lane_mirror = np.zeros(LANES, np.int64)
     active = np.zeros(LANES, np.uint8)
     finished = np.empty(LANES, np.int64)
-    ring = np.zeros((RING, LANES), np.uint8)
+    words = max_k >= 2
+    ring = np.zeros((RING if words else 1, LANES), np.uint8)
     # constants of the lane float type, so that no operation widens to float64
     consts = np.empty(3, float_proto.dtype)
     consts[0] = 0
@@ -156,10 +336,19 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
     float_one = consts[1]
     cap_f = consts[2]
 
-    # per length n, sum over rationals of the count of each symbol; per symbol, sum of count**2
-    by_length = np.zeros((RING + 1, PACKED_SYMBOLS), np.int64)
-    squares = np.zeros(PACKED_SYMBOLS, np.int64)
-    words = max_k >= 2
+    b_small = np.zeros(BUFFER, np.uint64)
+    b_mid = np.zeros(BUFFER, np.uint64)
+    b_high = np.zeros(BUFFER, np.uint64)
+    b_n = np.zeros(BUFFER, np.int64)
+    b_row = np.zeros(BUFFER, np.int64)
+    b_sym1 = np.zeros(BUFFER, np.int64)
+    b_own = np.zeros(BUFFER, np.int64)
+    b_mirror = np.zeros(BUFFER, np.int64)
+    nb = 0
+    sym_total = np.zeros(PACKED_SYMBOLS, np.int64)
+    sym_weighted = np.zeros(PACKED_SYMBOLS, np.int64)
+    sym_squares = np.zeros(PACKED_SYMBOLS, np.int64)
+
     n_words = word_sums.shape[0]
     wtab = np.zeros((n_words if words else 1, 4), np.int64)
     offsets = np.zeros(max_k + 2, np.int64)
@@ -168,22 +357,115 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
     codes = np.zeros(max_k + 1, np.int64)
     stamp = np.int64(0)
 
-    state = np.zeros(2, np.int64)
+    state = np.zeros(3, np.int64)
     state[0] = q_first
+    more = True
     n_active = 0
+    t = np.int64(-1)
+    # lane refills happen at the end of step t; the first fill is "step -1"
+    lanes_to_fill = LANES
     for lane in range(LANES):
-        if _next_member(state, q_hi, q_step, num_ok, den_ok):
-            xf[lane] = state[0]
-            yf[lane] = state[1]
-            lane_q[lane] = state[0]
-            active[lane] = 1
-            n_active += 1
-        else:
+        finished[lane] = lane
+    while True:
+        # Phase 3 (and the first fill): book finished lanes, refill them from the next fractions.
+        for j in range(lanes_to_fill):
+            lane = finished[j]
+            if active[lane]:
+                if (not coprime_only) or xf[lane] == float_one:
+                    if nb == BUFFER:
+                        _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_own,
+                                        b_mirror, cap, sym_total, sym_weighted, sym_squares,
+                                        length_hist, per_den)
+                        nb = 0
+                    n = t - t_first[lane] + 1
+                    b_small[nb] = small[lane]
+                    b_mid[nb] = mid[lane]
+                    b_high[nb] = high[lane]
+                    b_n[nb] = n
+                    b_row[nb] = lane_row[lane]
+                    b_sym1[nb] = lane_sym1[lane]
+                    b_own[nb] = lane_own[lane]
+                    b_mirror[nb] = lane_mirror[lane]
+                    nb += 1
+                    if words:
+                        stamp += 1
+                        sym1 = lane_sym1[lane]
+                        sym_mirror2 = cap - 1 if sym1 == cap else sym1 - 1
+                        _record_words_pair(ring, lane, t_first[lane], n, max_k, cap, offsets,
+                                           codes, wtab, stamp, lane_own[lane], lane_mirror[lane],
+                                           sym_mirror2)
+                active[lane] = 0
+                n_active -= 1
             xf[lane] = 2
             yf[lane] = 1
-
-    t = np.int64(0)
-    while n_active > 0:
+            small[lane] = _U0
+            mid[lane] = _U0
+            high[lane] = _U0
+            while more:
+                more = _next_half_member(state, q_hi, q_step, num_ok, den_ok)
+                if not more:
+                    break
+                q = state[0]
+                p = state[1]
+                # first quotient in scalar float64: floor(q/p) is exact for q < 2**52
+                a1 = np.int64(np.float64(q) / np.float64(p))
+                r = q - a1 * p
+                if r < 0:
+                    a1 -= 1
+                    r += p
+                elif r >= p:
+                    a1 += 1
+                    r -= p
+                sym1 = (a1 if a1 <= cap else cap + 1) - 1
+                s_counted = sym1 if sym1 < cap else cap - 1
+                first = _U1 << (np.uint64(s_counted) * _U8) if s_counted < 8 else _U0
+                first_mid = (_U1 << (np.uint64(s_counted - 8) * _U4)
+                             if (s_counted >= 8) & (s_counted < 24) else _U0)
+                first_high = _U1 << (np.uint64(s_counted - 24) * _U4) if s_counted >= 24 else _U0
+                own = state[2] & 1
+                mirror = state[2] >> 1
+                if r == 0:
+                    # p divides q: the expansion is [a1]; gcd(p, q) = p
+                    if (not coprime_only) or p == 1:
+                        if nb == BUFFER:
+                            _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_own,
+                                            b_mirror, cap, sym_total, sym_weighted, sym_squares,
+                                            length_hist, per_den)
+                            nb = 0
+                        b_small[nb] = first
+                        b_mid[nb] = first_mid
+                        b_high[nb] = first_high
+                        b_n[nb] = 1
+                        b_row[nb] = q - q_base
+                        b_sym1[nb] = sym1
+                        b_own[nb] = own
+                        b_mirror[nb] = mirror
+                        nb += 1
+                        if words and mirror != 0:
+                            # the mirror [1, a1 - 1] has the single word of length 2 (0, s)
+                            s2 = cap - 1 if sym1 == cap else sym1 - 1
+                            idx = offsets[2] + s2
+                            wtab[idx, 0] += 1
+                            wtab[idx, 2] += 1
+                    continue
+                xf[lane] = p
+                yf[lane] = r
+                small[lane] = first
+                mid[lane] = first_mid
+                high[lane] = first_high
+                lane_row[lane] = q - q_base
+                lane_sym1[lane] = sym1
+                lane_own[lane] = own
+                lane_mirror[lane] = mirror
+                t_first[lane] = t
+                if words:
+                    ring[t & RING_MASK, lane] = np.uint8(s_counted)
+                active[lane] = 1
+                n_active += 1
+                break
+        if n_active == 0:
+            break
+        t += 1
         slot = t & RING_MASK
         # Phase 1: one Euclid step in every lane, branch-free so that LLVM vectorises it.
         for lane in range(LANES):
@@ -195,76 +477,46 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
             quot[lane] = min(a, cap_f)
             xf[lane] = yv
             yf[lane] = xv - a * yv
-        for lane in range(LANES):
-            su = np.uint64(quot[lane]) - _U1
-            ring[slot, lane] = su
-            small[lane] += np.uint64(su < _U8) << ((su * _U8) & _U63)
-            mid[lane] += np.uint64((su >= _U8) & (su < _U24)) << (((su - _U8) * _U4) & _U63)
-            high[lane] += np.uint64(su >= _U24) << (((su - _U24) * _U4) & _U63)
+        if words:
+            for lane in range(LANES):
+                ring[slot, lane] = np.uint8(quot[lane]) - np.uint8(1)
+        if cap > 8:
+            for lane in range(LANES):
+                su = np.uint64(quot[lane]) - _U1
+                small[lane] += np.uint64(su < _U8) << ((su * _U8) & _U63)
+                mid[lane] += np.uint64((su >= _U8) & (su < _U24)) << (((su - _U8) * _U4) & _U63)
+                high[lane] += np.uint64(su >= _U24) << (((su - _U24) * _U4) & _U63)
+        else:
+            for lane in range(LANES):
+                su = np.uint64(quot[lane]) - _U1
+                small[lane] += _U1 << ((su * _U8) & _U63)
         # Phase 2: indices of the lanes whose expansion just ended.
         n_done = 0
         for lane in range(LANES):
             finished[n_done] = lane
             n_done += yf[lane] == float_zero
-        # Phase 3: book the finished rationals and refill their lanes.
-        for j in range(n_done):
-            lane = finished[j]
-            if active[lane]:
-                n = t - t_first[lane] + 1
-                if (not coprime_only) or xf[lane] == float_one:
-                    length_hist[n] += 1
-                    v0 = small[lane]
-                    row = lane_q[lane] - q_base
-                    per_den[row, 0] += 1
-                    per_den[row, 1] += n
-                    for d in range(ROW_DIGITS):
-                        per_den[row, 2 + d] += np.int64((v0 >> (np.uint64(d) * _U8)) & _U255)
-                    for sym in range(8):
-                        c = np.int64((v0 >> (np.uint64(sym) * _U8)) & _U255)
-                        by_length[n, sym] += c
-                        squares[sym] += c * c
-                    if cap > 8:
-                        v1 = mid[lane]
-                        for sym in range(16):
-                            c = np.int64((v1 >> (np.uint64(sym) * _U4)) & _U15)
-                            by_length[n, 8 + sym] += c
-                            squares[8 + sym] += c * c
-                    if cap > 24:
-                        v2 = high[lane]
-                        for sym in range(16):
-                            c = np.int64((v2 >> (np.uint64(sym) * _U4)) & _U15)
-                            by_length[n, 24 + sym] += c
-                            squares[24 + sym] += c * c
-                    if words:
-                        stamp += 1
-                        _record_words(ring, RING_MASK, lane, t_first[lane], n, 2, max_k, cap,
-                                      offsets, codes,
-                                      wtab, stamp)
-            small[lane] = _U0
-            mid[lane] = _U0
-            high[lane] = _U0
-            t_first[lane] = t + 1
-            if active[lane] and _next_member(state, q_hi, q_step, num_ok, den_ok):
-                xf[lane] = state[0]
-                yf[lane] = state[1]
-                lane_q[lane] = state[0]
-            else:
-                if active[lane]:
-                    active[lane] = 0
-                    n_active -= 1
-                xf[lane] = 2
-                yf[lane] = 1
-        t += 1
+        lanes_to_fill = n_done
 
+    _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_own, b_mirror, cap,
+                    sym_total, sym_weighted, sym_squares, length_hist, per_den)
+    # the middle fraction (q/2)/q = [0; 2] of even q is its own mirror; gcd = q/2
+    has_num = num_ok.shape[0] > 0
+    has_den = den_ok.shape[0] > 0
+    for q in range(q_first, q_hi + 1, q_step):
+        if q % 2 == 0 and ((not has_den) or den_ok[q] != 0) and ((not has_num) or num_ok[q // 2] != 0) \
+                and ((not coprime_only) or q == 2):
+            length_hist[1] += 1
+            sym_total[1] += 1
+            sym_weighted[1] += 1
+            sym_squares[1] += 1
+            row = q - q_base
+            per_den[row, 0] += 1
+            per_den[row, 1] += 1
+            per_den[row, 3] += 1
     for sym in range(cap):
-        total = np.int64(0)
-        weighted = np.int64(0)
-        for n in range(1, RING + 1):
-            total += by_length[n, sym]
-            weighted += by_length[n, sym] * n
-        word_sums[sym, 0] += total
-        word_sums[sym, 1] += squares[sym]
-        word_sums[sym, 2] += weighted
+        word_sums[sym, 0] += sym_total[sym]
+        word_sums[sym, 1] += sym_squares[sym]
+        word_sums[sym, 2] += sym_weighted[sym]
     if words:
         _words_to_sums(wtab, offsets[2], word_sums)
 

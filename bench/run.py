@@ -109,10 +109,12 @@ def build_c():
     for name in ("cf_plain", "cf_lockstep"):
         getattr(dll, name).argtypes = [ctypes.c_int64, ctypes.c_int64, ctypes.c_int64, ctypes.c_int,
                                        p64, p64, p64]
+    dll.cf_avx512.argtypes = [ctypes.c_int64, ctypes.c_int64, ctypes.c_int64, ctypes.c_int, ctypes.c_int,
+                              p64, p64, p64]
     return dll, " ".join(cmd), isa
 
 
-def c_runner(dll, name):
+def c_runner(dll, name, *extra):
     fn = getattr(dll, name)
 
     def run(q_lo, q_hi, cap, threads):
@@ -120,7 +122,7 @@ def c_runner(dll, name):
         lengths = np.zeros(129, np.int64)
         rows = np.zeros((q_hi - q_lo + 1, 6), np.int64)
         p = lambda a: a.ctypes.data_as(ctypes.POINTER(ctypes.c_int64))  # noqa: E731
-        fn(q_lo, q_hi, cap, threads, p(hist), p(lengths), p(rows))
+        fn(q_lo, q_hi, cap, threads, *extra, p(hist), p(lengths), p(rows))
         return hist, lengths, rows
     return run
 
@@ -185,6 +187,8 @@ def main(argv=None):
         "cfsweep_k3": kernel_runner(3),
         "c_plain": c_runner(dll, "cf_plain"),
         "c_lockstep": c_runner(dll, "cf_lockstep"),
+        "c_avx512": c_runner(dll, "cf_avx512", 0),
+        "c_avx512_mirror": c_runner(dll, "cf_avx512", 1),
     }
     for name, fn in impls.items():
         t = time.perf_counter()

@@ -40,6 +40,8 @@ while the remainder is at least 2**53, float64 quotient with integer correction 
 """
 import numpy as np
 from numba import prange
+# LLVM's cttz; an internal but long-standing Numba intrinsic
+from numba.cpython.unsafe.numbers import trailing_zeros
 
 from ._jit import parallel, serial
 from .euclid import MAX_LENGTH
@@ -49,6 +51,7 @@ from .sweep_reference import (ROW_COLUMNS, ROW_DIGITS, n_word_rows, reference_sw
 __all__ = ["ROW_COLUMNS", "ROW_DIGITS", "LANES", "PACKED_SYMBOLS", "word_offset", "n_word_rows",
            "sweep_block", "sweep_block_serial", "tally_pairs", "tally_pairs_serial"]
 
+# One bit per lane in a uint64 mask of the lanes that finished in a step.
 LANES = 64
 # Power of two above the longest expansion of any p/q with q < 2**31 (46 partial quotients).
 RING = 64
@@ -61,6 +64,7 @@ FLOAT64_EXACT = 2 ** 53
 
 _U0 = np.uint64(0)
 _U1 = np.uint64(1)
+_U2 = np.uint64(2)
 _U4 = np.uint64(4)
 _U8 = np.uint64(8)
 _U15 = np.uint64(15)
@@ -145,17 +149,9 @@ def _word_occurrence(wtab, idx, stamp, delta, m):
 
 
 @serial
-def _record_words_pair(ring, lane, t_first, n, max_k, cap, offsets, codes, wtab, stamp,
-                       own, mirror, sym_mirror2):
-    """Words of lengths 2..max_k of p/q (weight ``own``) and of its mirror (weight ``mirror``).
-
-    The ring holds the symbols s_1..s_n of p/q (2p < q, so a1 >= 2); the mirror (q - p)/q has the
-    symbols 0, ``sym_mirror2``, s_2, ..., s_n. Every occurrence of p/q except the words at its first
-    position is also an occurrence in the mirror at one position later, whose m is one larger, so the
-    mirror is booked as p/q's occurrences plus its two new first positions minus p/q's first ones.
-    The scratch counts first hold p/q's counts, then the mirror's, so the prior-count sums of both
-    are exact.
-    """
+def _record_words_rolling(ring, lane, t_first, n, max_k, cap, offsets, codes, wtab, stamp, own,
+                          mirror):
+    """The occurrences part of :func:`_record_words_pair` for any max_k, with rolling word codes."""
     weight = own + mirror
     for k in range(max_k + 1):
         codes[k] = 0
@@ -173,6 +169,52 @@ def _record_words_pair(ring, lane, t_first, n, max_k, cap, offsets, codes, wtab,
             wtab[idx, 1] += weight * before
             wtab[idx, 2] += own * (n - k + 1) + mirror * (n - k + 2)
         codes[1] = s
+
+
+@serial
+def _record_words_pair(ring, lane, t_first, n, max_k, cap, offsets, codes, wtab, stamp,
+                       own, mirror, sym_mirror2):
+    """Words of lengths 2..max_k of p/q (weight ``own``) and of its mirror (weight ``mirror``).
+
+    The ring holds the symbols s_1..s_n of p/q (2p < q, so a1 >= 2); the mirror (q - p)/q has the
+    symbols 0, ``sym_mirror2``, s_2, ..., s_n. Every occurrence of p/q except the words at its first
+    position is also an occurrence in the mirror at one position later, whose m is one larger, so the
+    mirror is booked as p/q's occurrences plus its two new first positions minus p/q's first ones.
+    The scratch counts first hold p/q's counts, then the mirror's, so the prior-count sums of both
+    are exact.
+    """
+    weight = own + mirror
+    if max_k <= 3:
+        # the common case without the rolling-code array: the words ending at position j
+        row2 = offsets[2]
+        row3 = offsets[3]
+        add2 = own * (n - 1) + mirror * n
+        add3 = own * (n - 2) + mirror * (n - 1)
+        prev1 = np.int64(ring[t_first & RING_MASK, lane])
+        prev2 = np.int64(0)
+        for j in range(1, n):
+            s = np.int64(ring[(t_first + j) & RING_MASK, lane])
+            code2 = prev1 * cap + s
+            idx = row2 + code2
+            v = wtab[idx, 3]
+            before = (v & 255) if (v >> 8) == stamp else 0
+            wtab[idx, 3] = (stamp << 8) | (before + 1)
+            wtab[idx, 0] += weight
+            wtab[idx, 1] += weight * before
+            wtab[idx, 2] += add2
+            if max_k == 3 and j >= 2:
+                idx = row3 + prev2 * cap + s
+                v = wtab[idx, 3]
+                before = (v & 255) if (v >> 8) == stamp else 0
+                wtab[idx, 3] = (stamp << 8) | (before + 1)
+                wtab[idx, 0] += weight
+                wtab[idx, 1] += weight * before
+                wtab[idx, 2] += add3
+            prev2 = code2
+            prev1 = s
+    else:
+        _record_words_rolling(ring, lane, t_first, n, max_k, cap, offsets, codes, wtab, stamp,
+                              own, mirror)
     if mirror == 0:
         return
     for k in range(2, max_k + 1):
@@ -207,17 +249,7 @@ def _words_to_sums(wtab, first_row, word_sums):
 
 
 @serial
-def _packed_count(small, mid, high, sym):
-    """Count of symbol ``sym`` held in a lane's packed counters."""
-    if sym < 8:
-        return np.int64((small >> (np.uint64(sym) * _U8)) & _U255)
-    if sym < 24:
-        return np.int64((mid >> (np.uint64(sym - 8) * _U4)) & _U15)
-    return np.int64((high >> (np.uint64(sym - 24) * _U4)) & _U15)
-
-
-@serial
-def _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_own, b_mirror, cap,
+def _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_c1, b_c2, b_own, b_mirror, cap,
                     sym_total, sym_weighted, sym_squares, length_hist, per_den):
     """Book ``nb`` buffered finished pairs (p/q and its mirror) into the digit sums.
 
@@ -226,20 +258,24 @@ def _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_own, b_mir
     0/1 of p/q and of the mirror (length n + 1, counts +1 at symbol 0, -1 at sym1, +1 at the symbol
     of a1 - 1). The common symbols 0..7 are summed by loops over the buffer that LLVM vectorises.
     """
+    # float32 holds these per-flush sums exactly: at most BUFFER * 46 * 95 < 2**24
+    acc_total = np.zeros(8, np.float32)
+    acc_weighted = np.zeros(8, np.float32)
+    acc_squares = np.zeros(8, np.float32)
+    for i in range(nb):
+        v = b_small[i]
+        w = np.float32(b_own[i] + b_mirror[i])
+        nw = np.float32((b_own[i] + b_mirror[i]) * b_n[i] + b_mirror[i])
+        for sym in range(8):
+            c = np.float32((v >> (np.uint64(sym) * _U8)) & _U255)
+            cw = c * w
+            acc_total[sym] += cw
+            acc_weighted[sym] += c * nw
+            acc_squares[sym] += c * cw
     for sym in range(8):
-        shift = np.uint64(sym) * _U8
-        total = np.int64(0)
-        weighted = np.int64(0)
-        squares = np.int64(0)
-        for i in range(nb):
-            c = np.int64((b_small[i] >> shift) & _U255)
-            w = b_own[i] + b_mirror[i]
-            total += c * w
-            weighted += c * (w * b_n[i] + b_mirror[i])
-            squares += c * c * w
-        sym_total[sym] += total
-        sym_weighted[sym] += weighted
-        sym_squares[sym] += squares
+        sym_total[sym] += np.int64(acc_total[sym])
+        sym_weighted[sym] += np.int64(acc_weighted[sym])
+        sym_squares[sym] += np.int64(acc_squares[sym])
     for i in range(nb):
         own = b_own[i]
         mirror = b_mirror[i]
@@ -255,47 +291,40 @@ def _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_own, b_mir
             per_den[row, 2 + d] += w * np.int64((v0 >> (np.uint64(d) * _U8)) & _U255)
         for part in range(2):
             v = b_mid[i] if part == 0 else b_high[i]
-            sym = 8 + 16 * part
+            # visit only the nonzero 4-bit fields (usually none or one)
             while v != _U0:
-                c = np.int64(v & _U15)
-                if c != 0:
-                    sym_total[sym] += c * w
-                    sym_weighted[sym] += c * (w * n + mirror)
-                    sym_squares[sym] += c * c * w
-                v >>= _U4
-                sym += 1
-        if mirror != 0:
-            # the mirror's counts differ at three symbols: +1 at 0, -1 at sym1, +1 at sym2; apply the
-            # changes one at a time so that coinciding symbols are handled by the same formula
-            sym1 = b_sym1[i]
-            pooled = sym1 == cap
-            if pooled:
-                sym1 = cap - 1
-            sym2 = cap - 1 if pooled else sym1 - 1
-            c0 = _packed_count(v0, b_mid[i], b_high[i], 0)
-            c1 = _packed_count(v0, b_mid[i], b_high[i], sym1)
-            c2 = _packed_count(v0, b_mid[i], b_high[i], sym2)
-            m = n + 1
-            # +1 at symbol 0
-            sym_total[0] += 1
-            sym_weighted[0] += m
-            sym_squares[0] += 2 * c0 + 1
-            c0 += 1
-            # -1 at sym1 (sym1 >= 1, since a1 >= 2)
-            sym_total[sym1] -= 1
-            sym_weighted[sym1] -= m
-            sym_squares[sym1] += 1 - 2 * c1
-            c1 -= 1
-            # +1 at sym2, whose count may be c0 or c1 updated above
-            now = c0 if sym2 == 0 else (c1 if sym2 == sym1 else c2)
-            sym_total[sym2] += 1
-            sym_weighted[sym2] += m
-            sym_squares[sym2] += 2 * now + 1
-            per_den[row, 2] += 1
-            if sym1 < ROW_DIGITS:
-                per_den[row, 2 + sym1] -= 1
-            if sym2 < ROW_DIGITS:
-                per_den[row, 2 + sym2] += 1
+                field = trailing_zeros(v) >> _U2
+                shift = field * _U4
+                c = np.int64((v >> shift) & _U15)
+                v &= ~(_U15 << shift)
+                sym = 8 + 16 * part + np.int64(field)
+                sym_total[sym] += c * w
+                sym_weighted[sym] += c * (w * n + mirror)
+                sym_squares[sym] += c * c * w
+        # The mirror's counts differ at three symbols: +1 at 0, -1 at sym1, +1 at sym2 (sym1 >= 1
+        # since a1 >= 2; sym2 may equal 0 or sym1). Applied one at a time with weight ``mirror``,
+        # so coinciding symbols need no case; counts: c0 from the packed byte, c1 and c2 the counts
+        # of sym1 and sym2 in p/q tracked by the lane.
+        sym1 = b_sym1[i]
+        pooled = sym1 == cap
+        sym1 -= pooled
+        sym2 = cap - 1 if pooled else sym1 - 1
+        c0 = np.int64(v0 & _U255)
+        c1 = b_c1[i]
+        m = n + 1
+        sym_total[0] += mirror
+        sym_weighted[0] += mirror * m
+        sym_squares[0] += mirror * (2 * c0 + 1)
+        sym_total[sym1] -= mirror
+        sym_weighted[sym1] -= mirror * m
+        sym_squares[sym1] += mirror * (1 - 2 * c1)
+        now = b_c2[i] + (sym2 == 0) - (sym2 == sym1)
+        sym_total[sym2] += mirror
+        sym_weighted[sym2] += mirror * m
+        sym_squares[sym2] += mirror * (2 * now + 1)
+        per_den[row, 2] += mirror
+        per_den[row, 2 + (sym1 & 3)] -= mirror * (sym1 < ROW_DIGITS)
+        per_den[row, 2 + (sym2 & 3)] += mirror * (sym2 < ROW_DIGITS)
 
 
 BUFFER = 512
@@ -321,10 +350,14 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
     t_first = np.zeros(LANES, np.int64)
     lane_row = np.zeros(LANES, np.int64)
     lane_sym1 = np.zeros(LANES, np.int64)
+    # float digits min(a, cap) of the symbols sym1 and sym2 (see _flush_finished), and their counts
+    lane_d1 = np.zeros(LANES, float_proto.dtype)
+    lane_d2 = np.zeros(LANES, float_proto.dtype)
+    count1 = np.zeros(LANES, float_proto.dtype)
+    count2 = np.zeros(LANES, float_proto.dtype)
     lane_own = np.zeros(LANES, np.int64)
     lane_mirror = np.zeros(LANES, np.int64)
     active = np.zeros(LANES, np.uint8)
-    finished = np.empty(LANES, np.int64)
     words = max_k >= 2
     ring = np.zeros((RING if words else 1, LANES), np.uint8)
     # constants of the lane float type, so that no operation widens to float64
@@ -342,6 +375,8 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
     b_n = np.zeros(BUFFER, np.int64)
     b_row = np.zeros(BUFFER, np.int64)
     b_sym1 = np.zeros(BUFFER, np.int64)
+    b_c1 = np.zeros(BUFFER, np.int64)
+    b_c2 = np.zeros(BUFFER, np.int64)
     b_own = np.zeros(BUFFER, np.int64)
     b_mirror = np.zeros(BUFFER, np.int64)
     nb = 0
@@ -357,24 +392,31 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
     codes = np.zeros(max_k + 1, np.int64)
     stamp = np.int64(0)
 
-    state = np.zeros(3, np.int64)
-    state[0] = q_first
-    more = True
+    row2 = offsets[2] if max_k >= 2 else 0
+    row3 = offsets[3] if max_k >= 3 else 0
+    d_row = np.zeros(8, np.int64)
+    d_sign = np.zeros(8, np.int64)
+    d_m = np.zeros(8, np.int64)
+
+    has_num = num_ok.shape[0] > 0
+    has_den = den_ok.shape[0] > 0
+    gen_q = q_first
+    gen_p = np.int64(0)
+    more = q_first <= q_hi
     n_active = 0
     t = np.int64(-1)
     # lane refills happen at the end of step t; the first fill is "step -1"
-    lanes_to_fill = LANES
-    for lane in range(LANES):
-        finished[lane] = lane
+    ended = ~_U0
     while True:
         # Phase 3 (and the first fill): book finished lanes, refill them from the next fractions.
-        for j in range(lanes_to_fill):
-            lane = finished[j]
+        while ended != _U0:
+            lane = np.int64(trailing_zeros(ended))
+            ended &= ended - _U1
             if active[lane]:
                 if (not coprime_only) or xf[lane] == float_one:
                     if nb == BUFFER:
-                        _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_own,
-                                        b_mirror, cap, sym_total, sym_weighted, sym_squares,
+                        _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_c1, b_c2,
+                                        b_own, b_mirror, cap, sym_total, sym_weighted, sym_squares,
                                         length_hist, per_den)
                         nb = 0
                     n = t - t_first[lane] + 1
@@ -384,16 +426,99 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                     b_n[nb] = n
                     b_row[nb] = lane_row[lane]
                     b_sym1[nb] = lane_sym1[lane]
+                    b_c1[nb] = np.int64(count1[lane])
+                    b_c2[nb] = np.int64(count2[lane])
                     b_own[nb] = lane_own[lane]
                     b_mirror[nb] = lane_mirror[lane]
                     nb += 1
                     if words:
                         stamp += 1
+                        own = lane_own[lane]
+                        mirror = lane_mirror[lane]
                         sym1 = lane_sym1[lane]
                         sym_mirror2 = cap - 1 if sym1 == cap else sym1 - 1
-                        _record_words_pair(ring, lane, t_first[lane], n, max_k, cap, offsets,
-                                           codes, wtab, stamp, lane_own[lane], lane_mirror[lane],
-                                           sym_mirror2)
+                        tf = t_first[lane]
+                        if max_k <= 3:
+                            # _record_words_pair written out for max_k <= 3: a call with array
+                            # arguments costs atomic reference-count updates per finished lane
+                            weight = own + mirror
+                            add2 = own * (n - 1) + mirror * n
+                            add3 = own * (n - 2) + mirror * (n - 1)
+                            prev1 = np.int64(ring[tf & RING_MASK, lane])
+                            prev2 = np.int64(0)
+                            for j in range(1, n):
+                                s = np.int64(ring[(tf + j) & RING_MASK, lane])
+                                code2 = prev1 * cap + s
+                                idx = row2 + code2
+                                v = wtab[idx, 3]
+                                before = (v & 255) if (v >> 8) == stamp else 0
+                                wtab[idx, 3] = (stamp << 8) | (before + 1)
+                                wtab[idx, 0] += weight
+                                wtab[idx, 1] += weight * before
+                                wtab[idx, 2] += add2
+                                if max_k == 3 and j >= 2:
+                                    idx = row3 + prev2 * cap + s
+                                    v = wtab[idx, 3]
+                                    before = (v & 255) if (v >> 8) == stamp else 0
+                                    wtab[idx, 3] = (stamp << 8) | (before + 1)
+                                    wtab[idx, 0] += weight
+                                    wtab[idx, 1] += weight * before
+                                    wtab[idx, 2] += add3
+                                prev2 = code2
+                                prev1 = s
+                            if mirror != 0:
+                                # the mirror's changes at its first two positions, as in
+                                # _record_words_pair: (word row, +1 or -1, m of the mirror)
+                                s_1 = np.int64(ring[tf & RING_MASK, lane])
+                                s_2 = np.int64(ring[(tf + 1) & RING_MASK, lane])
+                                s_3 = np.int64(ring[(tf + 2) & RING_MASK, lane])
+                                nd = 0
+                                if n >= 2:
+                                    d_row[nd] = row2 + s_1 * cap + s_2
+                                    d_sign[nd] = -1
+                                    d_m[nd] = n
+                                    nd += 1
+                                d_row[nd] = row2 + sym_mirror2
+                                d_sign[nd] = 1
+                                d_m[nd] = n
+                                nd += 1
+                                if n >= 2:
+                                    d_row[nd] = row2 + sym_mirror2 * cap + s_2
+                                    d_sign[nd] = 1
+                                    d_m[nd] = n
+                                    nd += 1
+                                if max_k == 3 and n >= 2:
+                                    if n >= 3:
+                                        d_row[nd] = row3 + (s_1 * cap + s_2) * cap + s_3
+                                        d_sign[nd] = -1
+                                        d_m[nd] = n - 1
+                                        nd += 1
+                                    d_row[nd] = row3 + sym_mirror2 * cap + s_2
+                                    d_sign[nd] = 1
+                                    d_m[nd] = n - 1
+                                    nd += 1
+                                    if n >= 3:
+                                        d_row[nd] = row3 + (sym_mirror2 * cap + s_2) * cap + s_3
+                                        d_sign[nd] = 1
+                                        d_m[nd] = n - 1
+                                        nd += 1
+                                for d in range(nd):
+                                    idx = d_row[d]
+                                    delta = d_sign[d]
+                                    v = wtab[idx, 3]
+                                    count = (v & 255) if (v >> 8) == stamp else 0
+                                    if delta > 0:
+                                        wtab[idx, 1] += count
+                                        count += 1
+                                    else:
+                                        count -= 1
+                                        wtab[idx, 1] -= count
+                                    wtab[idx, 3] = (stamp << 8) | count
+                                    wtab[idx, 0] += delta
+                                    wtab[idx, 2] += delta * d_m[d]
+                        else:
+                            _record_words_pair(ring, lane, tf, n, max_k, cap, offsets, codes, wtab,
+                                               stamp, own, mirror, sym_mirror2)
                 active[lane] = 0
                 n_active -= 1
             xf[lane] = 2
@@ -402,11 +527,22 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
             mid[lane] = _U0
             high[lane] = _U0
             while more:
-                more = _next_half_member(state, q_hi, q_step, num_ok, den_ok)
-                if not more:
-                    break
-                q = state[0]
-                p = state[1]
+                # next p with 2p < q where p/q or its mirror is a member (as _next_half_member, written
+                # out: a call with array arguments costs atomic reference-count updates)
+                gen_p += 1
+                if 2 * gen_p >= gen_q or (has_den and den_ok[gen_q] == 0):
+                    gen_q += q_step
+                    gen_p = 0
+                    more = gen_q <= q_hi
+                    continue
+                if has_num:
+                    flags = np.int64(num_ok[gen_p] != 0) | (np.int64(num_ok[gen_q - gen_p] != 0) << 1)
+                    if flags == 0:
+                        continue
+                else:
+                    flags = np.int64(3)
+                q = gen_q
+                p = gen_p
                 # first quotient in scalar float64: floor(q/p) is exact for q < 2**52
                 a1 = np.int64(np.float64(q) / np.float64(p))
                 r = q - a1 * p
@@ -422,14 +558,14 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                 first_mid = (_U1 << (np.uint64(s_counted - 8) * _U4)
                              if (s_counted >= 8) & (s_counted < 24) else _U0)
                 first_high = _U1 << (np.uint64(s_counted - 24) * _U4) if s_counted >= 24 else _U0
-                own = state[2] & 1
-                mirror = state[2] >> 1
+                own = flags & 1
+                mirror = flags >> 1
                 if r == 0:
                     # p divides q: the expansion is [a1]; gcd(p, q) = p
                     if (not coprime_only) or p == 1:
                         if nb == BUFFER:
-                            _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_own,
-                                            b_mirror, cap, sym_total, sym_weighted, sym_squares,
+                            _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_c1, b_c2,
+                                            b_own, b_mirror, cap, sym_total, sym_weighted, sym_squares,
                                             length_hist, per_den)
                             nb = 0
                         b_small[nb] = first
@@ -438,6 +574,8 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                         b_n[nb] = 1
                         b_row[nb] = q - q_base
                         b_sym1[nb] = sym1
+                        b_c1[nb] = 1
+                        b_c2[nb] = np.int64(sym1 == cap)
                         b_own[nb] = own
                         b_mirror[nb] = mirror
                         nb += 1
@@ -455,6 +593,10 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                 high[lane] = first_high
                 lane_row[lane] = q - q_base
                 lane_sym1[lane] = sym1
+                lane_d1[lane] = s_counted + 1
+                lane_d2[lane] = cap if sym1 == cap else sym1
+                count1[lane] = 1
+                count2[lane] = sym1 == cap
                 lane_own[lane] = own
                 lane_mirror[lane] = mirror
                 t_first[lane] = t
@@ -474,7 +616,10 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
             a = np.floor(xv / yv)
             # a is the quotient or one too big; the sign test is exact (see the module docstring)
             a = a - float_one * (xv - a * yv < float_zero)
-            quot[lane] = min(a, cap_f)
+            digit = min(a, cap_f)
+            quot[lane] = digit
+            count1[lane] += float_one * (digit == lane_d1[lane])
+            count2[lane] += float_one * (digit == lane_d2[lane])
             xf[lane] = yv
             yf[lane] = xv - a * yv
         if words:
@@ -490,18 +635,14 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
             for lane in range(LANES):
                 su = np.uint64(quot[lane]) - _U1
                 small[lane] += _U1 << ((su * _U8) & _U63)
-        # Phase 2: indices of the lanes whose expansion just ended.
-        n_done = 0
+        # Phase 2: bit mask of the lanes whose expansion just ended (an OR reduction LLVM vectorises).
+        ended = _U0
         for lane in range(LANES):
-            finished[n_done] = lane
-            n_done += yf[lane] == float_zero
-        lanes_to_fill = n_done
+            ended |= np.uint64(yf[lane] == float_zero) << np.uint64(lane)
 
-    _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_own, b_mirror, cap,
+    _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_c1, b_c2, b_own, b_mirror, cap,
                     sym_total, sym_weighted, sym_squares, length_hist, per_den)
     # the middle fraction (q/2)/q = [0; 2] of even q is its own mirror; gcd = q/2
-    has_num = num_ok.shape[0] > 0
-    has_den = den_ok.shape[0] > 0
     for q in range(q_first, q_hi + 1, q_step):
         if q % 2 == 0 and ((not has_den) or den_ok[q] != 0) and ((not has_num) or num_ok[q // 2] != 0) \
                 and ((not coprime_only) or q == 2):

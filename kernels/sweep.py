@@ -289,18 +289,23 @@ def _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_c1, b_c2, 
         per_den[row, 1] += w * n + mirror
         for d in range(ROW_DIGITS):
             per_den[row, 2 + d] += w * np.int64((v0 >> (np.uint64(d) * _U8)) & _U255)
-        for part in range(2):
-            v = b_mid[i] if part == 0 else b_high[i]
-            # visit only the nonzero 4-bit fields (usually none or one)
-            while v != _U0:
-                field = trailing_zeros(v) >> _U2
-                shift = field * _U4
-                c = np.int64((v >> shift) & _U15)
-                v &= ~(_U15 << shift)
-                sym = 8 + 16 * part + np.int64(field)
-                sym_total[sym] += c * w
-                sym_weighted[sym] += c * (w * n + mirror)
-                sym_squares[sym] += c * c * w
+        # visit only the nonzero 4-bit fields of both rare-symbol words (usually none or one), in
+        # one loop so that its exit is the only hard-to-predict branch
+        v_mid = b_mid[i]
+        v_high = b_high[i]
+        while (v_mid | v_high) != _U0:
+            in_mid = v_mid != _U0
+            v = v_mid if in_mid else v_high
+            field = trailing_zeros(v) >> _U2
+            shift = field * _U4
+            c = np.int64((v >> shift) & _U15)
+            cleared = v & ~(_U15 << shift)
+            v_mid = cleared if in_mid else v_mid
+            v_high = v_high if in_mid else cleared
+            sym = np.int64(field) + (8 if in_mid else 24)
+            sym_total[sym] += c * w
+            sym_weighted[sym] += c * (w * n + mirror)
+            sym_squares[sym] += c * c * w
         # The mirror's counts differ at three symbols: +1 at 0, -1 at sym1, +1 at sym2 (sym1 >= 1
         # since a1 >= 2; sym2 may equal 0 or sym1). Applied one at a time with weight ``mirror``,
         # so coinciding symbols need no case; counts: c0 from the packed byte, c1 and c2 the counts

@@ -8,7 +8,7 @@ per-denominator rows where it produces them) on its first timed run, and timed a
 runs after a warm-up call, so compile time is kept out and reported separately. The R repeats are
 interleaved (every implementation once per repeat) so that all see the same load of the shared machine. Pure Python runs on a small sub-range of
 denominators and is extrapolated per partial quotient. Figures are million partial quotients per
-second (MPQ/s). Results go to bench/results/latest.json and latest.md.
+second (MPQ/s). Results go to bench/results/latest.json and latest.md, and to quick.* or full.*.
 """
 import argparse
 import ctypes
@@ -276,8 +276,9 @@ def main(argv=None):
     }
     out_dir = HERE / "results"
     out_dir.mkdir(exist_ok=True)
-    (out_dir / "latest.json").write_text(json.dumps(result, indent=2) + "\n")
-    (out_dir / "latest.md").write_text(markdown(result) + "\n")
+    for stem in ("latest", result["mode"]):
+        (out_dir / f"{stem}.json").write_text(json.dumps(result, indent=2) + "\n")
+        (out_dir / f"{stem}.md").write_text(markdown(result) + "\n")
     print(markdown(result))
 
 

@@ -22,18 +22,34 @@ Outputs of :func:`sweep_block` (all int64):
 * ``per_den[q_hi-q_lo+1, ROW_COLUMNS]``: per denominator: members, partial quotients, and the counts of
   the digits 1..ROW_DIGITS (-1 where d >= cap, because the digit is then pooled).
 
-How it is fast (see the design note on kernel speed). One Euclid chain is bound by the latency of the
-divide, so LANES independent fractions advance in lockstep: a branch-free loop over lanes computes the
-quotient by a float division (float32 while q < 2**24, float64 beyond) and corrects it with one exact
-step, so every quotient is exact. Why one step suffices: x, y < 2**24 (2**53) are exact floats; the
-correctly rounded x/y is monotone, so its floor is the true quotient or one more. With a one too big,
-the true a*y >= x + 1, and x + 1 is representable, so the rounded a*y still exceeds x and the sign of
-x - a*y is right; after stepping a down, a*y <= x is exact and so is r = x - a*y. Digit counts of the rational in each lane live in packed
-per-lane counters (8-bit fields for symbols 0..7, 4-bit fields for 8..39: a symbol s >= 8 is a digit
->= 9, and 9**c <= q < 2**31 bounds its count c by 9), read once when the lane finishes. Words of
-length >= 2 are read from a per-lane ring of symbols when the lane finishes. Lanes are refilled from
-the next fraction as soon as they finish, so they flow across consecutive denominators. Caps above
-PACKED_SYMBOLS fall back to the plain reference kernel (:mod:`sweep_reference`).
+How it is fast (see the design note on kernel speed).
+
+* Mirror: if p/q = [0; a1, a2, ..., an] with 2p < q (so a1 >= 2), then (q - p)/q = [0; 1, a1 - 1, a2,
+  ..., an]. Only p < q/2 are expanded; each expansion books p/q and its mirror (each with weight 0/1:
+  family membership is checked on p and on q - p separately; gcd(q - p, q) = gcd(p, q)). The mirror's
+  digit counts differ at three symbols (+1 at digit 1, -1 at a1, +1 at a1 - 1), its length is n + 1
+  and its words differ only at its first two positions. The middle fraction (q/2)/q = [0; 2] of even q
+  is its own mirror and is booked on its own.
+* The first quotient a1 = floor(q/p) is taken in scalar float64 when a lane is refilled (exact for
+  q < 2**52), so lanes run from the second partial quotient on; p | q is booked at once.
+* LANES independent fractions advance in lockstep: a branch-free loop over lanes computes the
+  quotient by a float division (float32 while q < 2**24, float64 beyond) and corrects it with one exact
+  step, so every quotient is exact. Why one step suffices: x, y < 2**24 (2**53) are exact floats; the
+  correctly rounded x/y is monotone, so its floor is the true quotient or one more. With a one too big,
+  the true a*y >= x + 1, and x + 1 is representable, so the rounded a*y still exceeds x and the sign of
+  x - a*y is right; after stepping a down, a*y <= x is exact and so is r = x - a*y.
+* Digit counts of the rational in each lane live in packed per-lane counters (8-bit fields for
+  symbols 0..7, 4-bit fields for 8..39: a symbol s >= 8 is a digit >= 9, and 9**c <= q < 2**31 bounds
+  its count c by 9); the lane also counts the symbols of a1 and a1 - 1 for the mirror's c**2 sums.
+  Finished lanes (a uint64 bit mask, one bit per lane) are copied to a buffer that is booked BUFFER
+  at a time (digit sums in float32, exact below 2**24 per flush).
+* Words of length >= 2 are read from a per-lane ring of symbols when the lane finishes (no ring when
+  max_k = 1); the per-word scratch ``stamp << 8 | count`` gives per-rational counts without clearing.
+* Inside the lane loop no function taking arrays is called per lane (the family generator and the
+  word booking for max_k <= 3 are written out): each such call costs atomic reference-count updates.
+* Lanes are refilled from the next fraction as soon as they finish, so they flow across consecutive
+  denominators. Caps above PACKED_SYMBOLS fall back to the plain reference kernel
+  (:mod:`sweep_reference`).
 
 :func:`tally_pairs` tallies explicit fractions p/q with q < 2**63 (sampled runs): uint64 division
 while the remainder is at least 2**53, float64 quotient with integer correction below.
@@ -72,38 +88,6 @@ _U24 = np.uint64(24)
 _U63 = np.uint64(63)
 _U255 = np.uint64(255)
 _U2_53 = np.uint64(FLOAT64_EXACT)
-
-
-@serial
-def _next_half_member(state, q_hi, q_step, num_ok, den_ok):
-    """Advance ``state = [q, p, flags]`` to the next p with 2p < q where p or q - p is admissible.
-
-    flags bit 0: p/q is a member, bit 1: its mirror (q - p)/q is a member. On a change of q the middle
-    fraction p = q/2 (q even) is not visited here: :func:`_book_middle` books it.
-    """
-    has_num = num_ok.shape[0] > 0
-    has_den = den_ok.shape[0] > 0
-    q = state[0]
-    p = state[1] + 1
-    while q <= q_hi:
-        if (not has_den) or den_ok[q] != 0:
-            while 2 * p < q:
-                if has_num:
-                    flags = np.int64(num_ok[p] != 0) | (np.int64(num_ok[q - p] != 0) << 1)
-                else:
-                    flags = np.int64(3)
-                if flags != 0:
-                    state[0] = q
-                    state[1] = p
-                    state[2] = flags
-                    return True
-                p += 1
-        q += q_step
-        p = 1
-    state[0] = q
-    state[1] = 0
-    state[2] = 0
-    return False
 
 
 @serial
@@ -532,8 +516,8 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
             mid[lane] = _U0
             high[lane] = _U0
             while more:
-                # next p with 2p < q where p/q or its mirror is a member (as _next_half_member, written
-                # out: a call with array arguments costs atomic reference-count updates)
+                # next p with 2p < q where p/q (flags bit 0) or its mirror (bit 1) is a member; the
+                # middle fraction p = q/2 is booked after the loop
                 gen_p += 1
                 if 2 * gen_p >= gen_q or (has_den and den_ok[gen_q] == 0):
                     gen_q += q_step

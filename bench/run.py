@@ -4,10 +4,11 @@ Usage: python bench/run.py [--quick] [--q-max Q] [--repeats R]
 
 Workload: all p/q with 2 <= q <= Q (quick: Q = 4000, full: Q = 20000), cap 32. Every implementation is
 first checked against the cfsweep kernel (identical digit histogram and length histogram, and the
-per-denominator rows where it produces them), then timed as the median of R runs after a warm-up
-call, so compile time is kept out and reported separately. Pure Python runs on a small sub-range of
+per-denominator rows where it produces them) on its first timed run, and timed as the median of R
+runs after a warm-up call, so compile time is kept out and reported separately. The R repeats are
+interleaved (every implementation once per repeat) so that all see the same load of the shared machine. Pure Python runs on a small sub-range of
 denominators and is extrapolated per partial quotient. Figures are million partial quotients per
-second (MPQ/s). Results go to bench/results/latest.json and latest.md.
+second (MPQ/s). Results go to bench/results/latest.json and latest.md, and to quick.* or full.*.
 """
 import argparse
 import ctypes
@@ -109,10 +110,12 @@ def build_c():
     for name in ("cf_plain", "cf_lockstep"):
         getattr(dll, name).argtypes = [ctypes.c_int64, ctypes.c_int64, ctypes.c_int64, ctypes.c_int,
                                        p64, p64, p64]
+    dll.cf_avx512.argtypes = [ctypes.c_int64, ctypes.c_int64, ctypes.c_int64, ctypes.c_int, ctypes.c_int,
+                              p64, p64, p64]
     return dll, " ".join(cmd), isa
 
 
-def c_runner(dll, name):
+def c_runner(dll, name, *extra):
     fn = getattr(dll, name)
 
     def run(q_lo, q_hi, cap, threads):
@@ -120,7 +123,7 @@ def c_runner(dll, name):
         lengths = np.zeros(129, np.int64)
         rows = np.zeros((q_hi - q_lo + 1, 6), np.int64)
         p = lambda a: a.ctypes.data_as(ctypes.POINTER(ctypes.c_int64))  # noqa: E731
-        fn(q_lo, q_hi, cap, threads, p(hist), p(lengths), p(rows))
+        fn(q_lo, q_hi, cap, threads, *extra, p(hist), p(lengths), p(rows))
         return hist, lengths, rows
     return run
 
@@ -169,7 +172,7 @@ def main(argv=None):
     ap.add_argument("--repeats", type=int, default=None, help="timed runs per implementation (median)")
     args = ap.parse_args(argv)
     q_hi = args.q_max or (4000 if args.quick else 20000)
-    repeats = args.repeats or (3 if args.quick else 5)
+    repeats = args.repeats or (5 if args.quick else 3)
     q_lo = 2
     threads_list = [1, 2] if (os.cpu_count() or 1) >= 2 else [1]
 
@@ -185,6 +188,8 @@ def main(argv=None):
         "cfsweep_k3": kernel_runner(3),
         "c_plain": c_runner(dll, "cf_plain"),
         "c_lockstep": c_runner(dll, "cf_lockstep"),
+        "c_avx512": c_runner(dll, "cf_avx512", 0),
+        "c_avx512_mirror": c_runner(dll, "cf_avx512", 1),
     }
     for name, fn in impls.items():
         t = time.perf_counter()
@@ -199,23 +204,32 @@ def main(argv=None):
     ref_hist, ref_len, ref_rows = ref[0][:CAP, 0], ref[2], ref[3]
     total_pq = int(ref_rows[:, 1].sum())
 
-    pq_per_s = {}
+    # Interleaved timing: every repeat runs every implementation once per thread count, so that all of
+    # them see the same (shared, changing) machine load; the first repeat's output is also validated.
+    seconds = {name: {str(th): [] for th in threads_list} for name in impls}
+    load_seen = [os.getloadavg()[0]]
     old_threads = numba.get_num_threads()
     try:
-        for name, fn in impls.items():
-            pq_per_s[name] = {}
+        for rep in range(repeats):
             for th in threads_list:
                 numba.set_num_threads(th)
-                out = fn(q_lo, q_hi, CAP, th)
-                assert np.array_equal(out[0], ref_hist), (name, th, "digit histogram differs")
-                assert np.array_equal(out[1][:len(ref_len)], ref_len), (name, th, "lengths differ")
-                if len(out) > 2:
-                    assert np.array_equal(out[2], ref_rows), (name, th, "per-denominator rows differ")
-                sec = timed(lambda: fn(q_lo, q_hi, CAP, th), repeats)
-                pq_per_s[name][str(th)] = total_pq / sec / 1e6
-                print(f"{name:12s} {th}t {pq_per_s[name][str(th)]:9.1f} MPQ/s", flush=True)
+                for name, fn in impls.items():
+                    t = time.perf_counter()
+                    out = fn(q_lo, q_hi, CAP, th)
+                    seconds[name][str(th)].append(time.perf_counter() - t)
+                    if rep == 0:
+                        assert np.array_equal(out[0], ref_hist), (name, th, "digit histogram differs")
+                        assert np.array_equal(out[1][:len(ref_len)], ref_len), (name, th, "lengths differ")
+                        if len(out) > 2:
+                            assert np.array_equal(out[2], ref_rows), (name, th, "per-denominator rows differ")
+            load_seen.append(os.getloadavg()[0])
+            print(f"repeat {rep + 1}/{repeats} done, load {load_seen[-1]:.2f}", flush=True)
     finally:
         numba.set_num_threads(old_threads)
+    pq_per_s = {name: {th: total_pq / statistics.median(v) / 1e6 for th, v in per.items()}
+                for name, per in seconds.items()}
+    for name, per in pq_per_s.items():
+        print(f"{name:16s} " + "  ".join(f"{th}t {v:9.1f} MPQ/s" for th, v in per.items()), flush=True)
 
     # small sub-ranges for the slow ones, extrapolated per partial quotient
     sub_lo = max(q_lo, q_hi - (60 if args.quick else 150))
@@ -230,7 +244,11 @@ def main(argv=None):
         print(f"{name:12s} 1t {pq_per_s[name]['1']:9.2f} MPQ/s (q in [{lo}, {q_hi}])", flush=True)
     del sub_pq
 
-    c_best = {th: max(pq_per_s["c_plain"][th], pq_per_s["c_lockstep"][th]) for th in pq_per_s["c_plain"]}
+    c_names = [n for n in pq_per_s if n.startswith("c_")]
+    c_best = {th: max(pq_per_s[n][th] for n in c_names) for th in pq_per_s["c_plain"]}
+    c_best_name = {th: max(c_names, key=lambda n: pq_per_s[n][th]) for th in pq_per_s["c_plain"]}
+    # the digit-only C references without the mirror trick, for the ratio of equal Euclid work
+    c_nomirror = {th: max(pq_per_s[n][th] for n in c_names if "mirror" not in n) for th in c_best}
     k1 = pq_per_s["cfsweep_k1"]
     result = {
         "date": datetime.datetime.now().isoformat(timespec="seconds"),
@@ -241,6 +259,11 @@ def main(argv=None):
         "pq_per_s": pq_per_s,
         "ratio_kernel_vs_c_best_1t": k1["1"] / c_best["1"],
         "ratio_kernel_vs_c_best_2t": k1["2"] / c_best["2"] if "2" in k1 else None,
+        "c_best_name": c_best_name,
+        "ratio_kernel_vs_c_without_mirror": {th: k1[th] / c_nomirror[th] for th in k1},
+        "sweep_seconds": {name: {th: statistics.median(v) for th, v in per.items()}
+                          for name, per in seconds.items() if name.startswith("cfsweep")},
+        "load_average_1min": load_seen,
         "ratio_words3_vs_digits": {th: k1[th] / pq_per_s["cfsweep_k3"][th] for th in k1},
         "scaling_2t": {n: v["2"] / v["1"] for n, v in pq_per_s.items() if "2" in v},
         "peak_rss_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024,
@@ -253,8 +276,9 @@ def main(argv=None):
     }
     out_dir = HERE / "results"
     out_dir.mkdir(exist_ok=True)
-    (out_dir / "latest.json").write_text(json.dumps(result, indent=2) + "\n")
-    (out_dir / "latest.md").write_text(markdown(result) + "\n")
+    for stem in ("latest", result["mode"]):
+        (out_dir / f"{stem}.json").write_text(json.dumps(result, indent=2) + "\n")
+        (out_dir / f"{stem}.md").write_text(markdown(result) + "\n")
     print(markdown(result))
 
 
@@ -270,13 +294,24 @@ def markdown(r):
         two = f"{v['2']:.1f}" if "2" in v else "-"
         sc = f"{r['scaling_2t'][name]:.2f}x" if name in r["scaling_2t"] else "-"
         lines.append(f"| {name} | {v['1']:.2f} | {two} | {sc} |")
-    lines += ["", f"cfsweep_k1 / best C: {r['ratio_kernel_vs_c_best_1t']:.2f} (1 thread), "
-              f"{(r['ratio_kernel_vs_c_best_2t'] or 0):.2f} (2 threads). "
+    lines += ["", f"cfsweep_k1 / best C ({', '.join(f'{t} thr: {n}' for t, n in r['c_best_name'].items())}): "
+              f"{r['ratio_kernel_vs_c_best_1t']:.2f} (1 thread), "
+              f"{(r['ratio_kernel_vs_c_best_2t'] or 0):.2f} (2 threads); against the best C without the "
+              "mirror trick: " + ", ".join(f"{v:.2f} ({t} thr)" for t, v in r["ratio_kernel_vs_c_without_mirror"].items())
+              + ". "
               "Time of words k<=3 over digits only: "
               + ", ".join(f"{v:.2f}x ({t} thr)" for t, v in r["ratio_words3_vs_digits"].items())
               + f". Peak RSS {r['peak_rss_mb']:.0f} MB.",
-              "cfsweep_kK: sweep_block with words up to length K and the error-bar sums; the C references "
-              "and numba_plain compute the digit histogram and lengths (C also the per-denominator rows) only."]
+              "Wall time of one sweep of this workload (median): "
+              + "; ".join(f"{n} " + ", ".join(f"{s:.2f} s ({t} thr)" for t, s in v.items())
+                          for n, v in r["sweep_seconds"].items()) + ".",
+              "1-minute load average seen during the timed runs: "
+              + ", ".join(f"{x:.1f}" for x in r["load_average_1min"]) + " (2 cores, shared machine).",
+              "cfsweep_kK: sweep_block with words up to length K and the error-bar sums (even k1 also sums c**2 "
+              "and c*m per digit); the C references and numba_plain compute the digit histogram and lengths "
+              "(C also the per-denominator rows) only. c_avx512: AVX-512 intrinsics, 64 float32 lanes, packed "
+              "counters; c_avx512_mirror: the same plus the mirror trick of the cfsweep kernel (expands only "
+              "p < q/2, from the second partial quotient)."]
     return "\n".join(lines)
 
 

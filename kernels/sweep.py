@@ -22,24 +22,42 @@ Outputs of :func:`sweep_block` (all int64):
 * ``per_den[q_hi-q_lo+1, ROW_COLUMNS]``: per denominator: members, partial quotients, and the counts of
   the digits 1..ROW_DIGITS (-1 where d >= cap, because the digit is then pooled).
 
-How it is fast (see the design note on kernel speed). One Euclid chain is bound by the latency of the
-divide, so LANES independent fractions advance in lockstep: a branch-free loop over lanes computes the
-quotient by a float division (float32 while q < 2**24, float64 beyond) and corrects it with one exact
-step, so every quotient is exact. Why one step suffices: x, y < 2**24 (2**53) are exact floats; the
-correctly rounded x/y is monotone, so its floor is the true quotient or one more. With a one too big,
-the true a*y >= x + 1, and x + 1 is representable, so the rounded a*y still exceeds x and the sign of
-x - a*y is right; after stepping a down, a*y <= x is exact and so is r = x - a*y. Digit counts of the rational in each lane live in packed
-per-lane counters (8-bit fields for symbols 0..7, 4-bit fields for 8..39: a symbol s >= 8 is a digit
->= 9, and 9**c <= q < 2**31 bounds its count c by 9), read once when the lane finishes. Words of
-length >= 2 are read from a per-lane ring of symbols when the lane finishes. Lanes are refilled from
-the next fraction as soon as they finish, so they flow across consecutive denominators. Caps above
-PACKED_SYMBOLS fall back to the plain reference kernel (:mod:`sweep_reference`).
+How it is fast (see the design note on kernel speed).
+
+* Mirror: if p/q = [0; a1, a2, ..., an] with 2p < q (so a1 >= 2), then (q - p)/q = [0; 1, a1 - 1, a2,
+  ..., an]. Only p < q/2 are expanded; each expansion books p/q and its mirror (each with weight 0/1:
+  family membership is checked on p and on q - p separately; gcd(q - p, q) = gcd(p, q)). The mirror's
+  digit counts differ at three symbols (+1 at digit 1, -1 at a1, +1 at a1 - 1), its length is n + 1
+  and its words differ only at its first two positions. The middle fraction (q/2)/q = [0; 2] of even q
+  is its own mirror and is booked on its own.
+* The first quotient a1 = floor(q/p) is taken in scalar float64 when a lane is refilled (exact for
+  q < 2**52), so lanes run from the second partial quotient on; p | q is booked at once.
+* LANES independent fractions advance in lockstep: a branch-free loop over lanes computes the
+  quotient by a float division (float32 while q < 2**24, float64 beyond) and corrects it with one exact
+  step, so every quotient is exact. Why one step suffices: x, y < 2**24 (2**53) are exact floats; the
+  correctly rounded x/y is monotone, so its floor is the true quotient or one more. With a one too big,
+  the true a*y >= x + 1, and x + 1 is representable, so the rounded a*y still exceeds x and the sign of
+  x - a*y is right; after stepping a down, a*y <= x is exact and so is r = x - a*y.
+* Digit counts of the rational in each lane live in packed per-lane counters (8-bit fields for
+  symbols 0..7, 4-bit fields for 8..39: a symbol s >= 8 is a digit >= 9, and 9**c <= q < 2**31 bounds
+  its count c by 9); the lane also counts the symbols of a1 and a1 - 1 for the mirror's c**2 sums.
+  Finished lanes (a uint64 bit mask, one bit per lane) are copied to a buffer that is booked BUFFER
+  at a time (digit sums in float32, exact below 2**24 per flush).
+* Words of length >= 2 are read from a per-lane ring of symbols when the lane finishes (no ring when
+  max_k = 1); the per-word scratch ``stamp << 8 | count`` gives per-rational counts without clearing.
+* Inside the lane loop no function taking arrays is called per lane (the family generator and the
+  word booking for max_k <= 3 are written out): each such call costs atomic reference-count updates.
+* Lanes are refilled from the next fraction as soon as they finish, so they flow across consecutive
+  denominators. Caps above PACKED_SYMBOLS fall back to the plain reference kernel
+  (:mod:`sweep_reference`).
 
 :func:`tally_pairs` tallies explicit fractions p/q with q < 2**63 (sampled runs): uint64 division
 while the remainder is at least 2**53, float64 quotient with integer correction below.
 """
 import numpy as np
 from numba import prange
+# LLVM's cttz; an internal but long-standing Numba intrinsic
+from numba.cpython.unsafe.numbers import trailing_zeros
 
 from ._jit import parallel, serial
 from .euclid import MAX_LENGTH
@@ -49,6 +67,7 @@ from .sweep_reference import (ROW_COLUMNS, ROW_DIGITS, n_word_rows, reference_sw
 __all__ = ["ROW_COLUMNS", "ROW_DIGITS", "LANES", "PACKED_SYMBOLS", "word_offset", "n_word_rows",
            "sweep_block", "sweep_block_serial", "tally_pairs", "tally_pairs_serial"]
 
+# One bit per lane in a uint64 mask of the lanes that finished in a step.
 LANES = 64
 # Power of two above the longest expansion of any p/q with q < 2**31 (46 partial quotients).
 RING = 64
@@ -61,6 +80,7 @@ FLOAT64_EXACT = 2 ** 53
 
 _U0 = np.uint64(0)
 _U1 = np.uint64(1)
+_U2 = np.uint64(2)
 _U4 = np.uint64(4)
 _U8 = np.uint64(8)
 _U15 = np.uint64(15)
@@ -71,31 +91,8 @@ _U2_53 = np.uint64(FLOAT64_EXACT)
 
 
 @serial
-def _next_member(state, q_hi, q_step, num_ok, den_ok):
-    """Advance ``state = [q, p]`` to the next admissible pair after it; False when none is left."""
-    has_num = num_ok.shape[0] > 0
-    has_den = den_ok.shape[0] > 0
-    q = state[0]
-    p = state[1] + 1
-    while q <= q_hi:
-        if (not has_den) or den_ok[q] != 0:
-            if has_num:
-                while p < q and num_ok[p] == 0:
-                    p += 1
-            if p < q:
-                state[0] = q
-                state[1] = p
-                return True
-        q += q_step
-        p = 1
-    state[0] = q
-    state[1] = 0
-    return False
-
-
-@serial
 def _record_words(ring, mask, lane, t_first, n, k_min, max_k, cap, offsets, codes, wtab, stamp):
-    """Add the words of lengths k_min..max_k of one finished rational to ``wtab``.
+    """Add the words of lengths k_min..max_k of one rational to ``wtab`` (used by tally_pairs).
 
     ``ring[(t_first + j) & mask, lane]`` is its j-th symbol. ``wtab`` rows hold, per word: sum c,
     sum of the prior count at each occurrence (so sum c**2 = sum c + 2 * that), sum m, and a scratch
@@ -120,6 +117,114 @@ def _record_words(ring, mask, lane, t_first, n, k_min, max_k, cap, offsets, code
 
 
 @serial
+def _word_occurrence(wtab, idx, stamp, delta, m):
+    """Add (delta = +1) or remove (delta = -1) one occurrence of word row ``idx`` in rational ``stamp``."""
+    v = wtab[idx, 3]
+    count = (v & 255) if (v >> 8) == stamp else 0
+    if delta > 0:
+        wtab[idx, 1] += count
+        count += 1
+    else:
+        count -= 1
+        wtab[idx, 1] -= count
+    wtab[idx, 3] = (stamp << 8) | count
+    wtab[idx, 0] += delta
+    wtab[idx, 2] += delta * m
+
+
+@serial
+def _record_words_rolling(ring, lane, t_first, n, max_k, cap, offsets, codes, wtab, stamp, own,
+                          mirror):
+    """The occurrences part of :func:`_record_words_pair` for any max_k, with rolling word codes."""
+    weight = own + mirror
+    for k in range(max_k + 1):
+        codes[k] = 0
+    for j in range(n):
+        s = np.int64(ring[(t_first + j) & RING_MASK, lane])
+        top = max_k if j + 1 >= max_k else j + 1
+        for k in range(top, 1, -1):
+            code = codes[k - 1] * cap + s
+            codes[k] = code
+            idx = offsets[k] + code
+            v = wtab[idx, 3]
+            before = (v & 255) if (v >> 8) == stamp else 0
+            wtab[idx, 3] = (stamp << 8) | (before + 1)
+            wtab[idx, 0] += weight
+            wtab[idx, 1] += weight * before
+            wtab[idx, 2] += own * (n - k + 1) + mirror * (n - k + 2)
+        codes[1] = s
+
+
+@serial
+def _record_words_pair(ring, lane, t_first, n, max_k, cap, offsets, codes, wtab, stamp,
+                       own, mirror, sym_mirror2):
+    """Words of lengths 2..max_k of p/q (weight ``own``) and of its mirror (weight ``mirror``).
+
+    The ring holds the symbols s_1..s_n of p/q (2p < q, so a1 >= 2); the mirror (q - p)/q has the
+    symbols 0, ``sym_mirror2``, s_2, ..., s_n. Every occurrence of p/q except the words at its first
+    position is also an occurrence in the mirror at one position later, whose m is one larger, so the
+    mirror is booked as p/q's occurrences plus its two new first positions minus p/q's first ones.
+    The scratch counts first hold p/q's counts, then the mirror's, so the prior-count sums of both
+    are exact.
+    """
+    weight = own + mirror
+    if max_k <= 3:
+        # the common case without the rolling-code array: the words ending at position j
+        row2 = offsets[2]
+        row3 = offsets[3]
+        add2 = own * (n - 1) + mirror * n
+        add3 = own * (n - 2) + mirror * (n - 1)
+        prev1 = np.int64(ring[t_first & RING_MASK, lane])
+        prev2 = np.int64(0)
+        for j in range(1, n):
+            s = np.int64(ring[(t_first + j) & RING_MASK, lane])
+            code2 = prev1 * cap + s
+            idx = row2 + code2
+            v = wtab[idx, 3]
+            before = (v & 255) if (v >> 8) == stamp else 0
+            wtab[idx, 3] = (stamp << 8) | (before + 1)
+            wtab[idx, 0] += weight
+            wtab[idx, 1] += weight * before
+            wtab[idx, 2] += add2
+            if max_k == 3 and j >= 2:
+                idx = row3 + prev2 * cap + s
+                v = wtab[idx, 3]
+                before = (v & 255) if (v >> 8) == stamp else 0
+                wtab[idx, 3] = (stamp << 8) | (before + 1)
+                wtab[idx, 0] += weight
+                wtab[idx, 1] += weight * before
+                wtab[idx, 2] += add3
+            prev2 = code2
+            prev1 = s
+    else:
+        _record_words_rolling(ring, lane, t_first, n, max_k, cap, offsets, codes, wtab, stamp,
+                              own, mirror)
+    if mirror == 0:
+        return
+    for k in range(2, max_k + 1):
+        m_mirror = n + 2 - k
+        if m_mirror <= 0:
+            break
+        if k <= n:
+            # the mirror lacks p/q's word at position 0
+            code = np.int64(0)
+            for j in range(k):
+                code = code * cap + np.int64(ring[(t_first + j) & RING_MASK, lane])
+            _word_occurrence(wtab, offsets[k] + code, stamp, -1, m_mirror)
+        # the mirror's word at position 0: 0, sym_mirror2, s_2, ..., s_(k-1)
+        code = sym_mirror2
+        for j in range(1, k - 1):
+            code = code * cap + np.int64(ring[(t_first + j) & RING_MASK, lane])
+        _word_occurrence(wtab, offsets[k] + code, stamp, 1, m_mirror)
+        if m_mirror >= 2:
+            # the mirror's word at position 1: sym_mirror2, s_2, ..., s_k
+            code = sym_mirror2
+            for j in range(1, k):
+                code = code * cap + np.int64(ring[(t_first + j) & RING_MASK, lane])
+            _word_occurrence(wtab, offsets[k] + code, stamp, 1, m_mirror)
+
+
+@serial
 def _words_to_sums(wtab, first_row, word_sums):
     for idx in range(first_row, word_sums.shape[0]):
         word_sums[idx, 0] += wtab[idx, 0]
@@ -128,13 +233,102 @@ def _words_to_sums(wtab, first_row, word_sums):
 
 
 @serial
+def _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_c1, b_c2, b_own, b_mirror, cap,
+                    sym_total, sym_weighted, sym_squares, length_hist, per_den):
+    """Book ``nb`` buffered finished pairs (p/q and its mirror) into the digit sums.
+
+    Per pair: packed counts of p/q, its length n, its per-denominator row, the symbol index of its
+    first digit a1 (``cap`` when a1 > cap, which tells the mirror's second symbol), and the weights
+    0/1 of p/q and of the mirror (length n + 1, counts +1 at symbol 0, -1 at sym1, +1 at the symbol
+    of a1 - 1). The common symbols 0..7 are summed by loops over the buffer that LLVM vectorises.
+    """
+    # float32 holds these per-flush sums exactly: at most BUFFER * 46 * 95 < 2**24
+    acc_total = np.zeros(8, np.float32)
+    acc_weighted = np.zeros(8, np.float32)
+    acc_squares = np.zeros(8, np.float32)
+    for i in range(nb):
+        v = b_small[i]
+        w = np.float32(b_own[i] + b_mirror[i])
+        nw = np.float32((b_own[i] + b_mirror[i]) * b_n[i] + b_mirror[i])
+        for sym in range(8):
+            c = np.float32((v >> (np.uint64(sym) * _U8)) & _U255)
+            cw = c * w
+            acc_total[sym] += cw
+            acc_weighted[sym] += c * nw
+            acc_squares[sym] += c * cw
+    for sym in range(8):
+        sym_total[sym] += np.int64(acc_total[sym])
+        sym_weighted[sym] += np.int64(acc_weighted[sym])
+        sym_squares[sym] += np.int64(acc_squares[sym])
+    for i in range(nb):
+        own = b_own[i]
+        mirror = b_mirror[i]
+        w = own + mirror
+        n = b_n[i]
+        v0 = b_small[i]
+        length_hist[n] += own
+        length_hist[n + 1] += mirror
+        row = b_row[i]
+        per_den[row, 0] += w
+        per_den[row, 1] += w * n + mirror
+        for d in range(ROW_DIGITS):
+            per_den[row, 2 + d] += w * np.int64((v0 >> (np.uint64(d) * _U8)) & _U255)
+        # visit only the nonzero 4-bit fields of both rare-symbol words (usually none or one), in
+        # one loop so that its exit is the only hard-to-predict branch
+        v_mid = b_mid[i]
+        v_high = b_high[i]
+        while (v_mid | v_high) != _U0:
+            in_mid = v_mid != _U0
+            v = v_mid if in_mid else v_high
+            field = trailing_zeros(v) >> _U2
+            shift = field * _U4
+            c = np.int64((v >> shift) & _U15)
+            cleared = v & ~(_U15 << shift)
+            v_mid = cleared if in_mid else v_mid
+            v_high = v_high if in_mid else cleared
+            sym = np.int64(field) + (8 if in_mid else 24)
+            sym_total[sym] += c * w
+            sym_weighted[sym] += c * (w * n + mirror)
+            sym_squares[sym] += c * c * w
+        # The mirror's counts differ at three symbols: +1 at 0, -1 at sym1, +1 at sym2 (sym1 >= 1
+        # since a1 >= 2; sym2 may equal 0 or sym1). Applied one at a time with weight ``mirror``,
+        # so coinciding symbols need no case; counts: c0 from the packed byte, c1 and c2 the counts
+        # of sym1 and sym2 in p/q tracked by the lane.
+        sym1 = b_sym1[i]
+        pooled = sym1 == cap
+        sym1 -= pooled
+        sym2 = cap - 1 if pooled else sym1 - 1
+        c0 = np.int64(v0 & _U255)
+        c1 = b_c1[i]
+        m = n + 1
+        sym_total[0] += mirror
+        sym_weighted[0] += mirror * m
+        sym_squares[0] += mirror * (2 * c0 + 1)
+        sym_total[sym1] -= mirror
+        sym_weighted[sym1] -= mirror * m
+        sym_squares[sym1] += mirror * (1 - 2 * c1)
+        now = b_c2[i] + (sym2 == 0) - (sym2 == sym1)
+        sym_total[sym2] += mirror
+        sym_weighted[sym2] += mirror * m
+        sym_squares[sym2] += mirror * (2 * now + 1)
+        per_den[row, 2] += mirror
+        per_den[row, 2 + (sym1 & 3)] -= mirror * (sym1 < ROW_DIGITS)
+        per_den[row, 2 + (sym2 & 3)] += mirror * (sym2 < ROW_DIGITS)
+
+
+BUFFER = 512
+
+
+@serial
 def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap, max_k,
                 int_proto, float_proto, word_sums, length_hist, per_den):
     """Lockstep sweep of q = q_first, q_first + q_step, ... <= q_hi (cap <= PACKED_SYMBOLS).
 
-    Adds into ``word_sums`` and ``length_hist``; adds members, partial quotients and digit counts to
-    ``per_den[q - q_base]``. ``int_proto``/``float_proto`` only choose the lane types (int32/float32
-    for q_hi < 2**24, int64/float64 beyond).
+    Only p with 2p < q are expanded (see the module docstring: the mirror (q - p)/q is booked from
+    the same expansion); their first quotient is taken in scalar code when a lane is refilled, so the
+    lanes run from the second partial quotient on. Adds into ``word_sums`` and ``length_hist``; adds
+    members, partial quotients and digit counts to ``per_den[q - q_base]``. ``int_proto``/
+    ``float_proto`` only choose the lane types (float32 for q_hi < 2**24, float64 beyond).
     """
     xf = np.empty(LANES, float_proto.dtype)
     yf = np.empty(LANES, float_proto.dtype)
@@ -143,10 +337,18 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
     mid = np.zeros(LANES, np.uint64)
     high = np.zeros(LANES, np.uint64)
     t_first = np.zeros(LANES, np.int64)
-    lane_q = np.zeros(LANES, np.int64)
+    lane_row = np.zeros(LANES, np.int64)
+    lane_sym1 = np.zeros(LANES, np.int64)
+    # float digits min(a, cap) of the symbols sym1 and sym2 (see _flush_finished), and their counts
+    lane_d1 = np.zeros(LANES, float_proto.dtype)
+    lane_d2 = np.zeros(LANES, float_proto.dtype)
+    count1 = np.zeros(LANES, float_proto.dtype)
+    count2 = np.zeros(LANES, float_proto.dtype)
+    lane_own = np.zeros(LANES, np.int64)
+    lane_mirror = np.zeros(LANES, np.int64)
     active = np.zeros(LANES, np.uint8)
-    finished = np.empty(LANES, np.int64)
-    ring = np.zeros((RING, LANES), np.uint8)
+    words = max_k >= 2
+    ring = np.zeros((RING if words else 1, LANES), np.uint8)
     # constants of the lane float type, so that no operation widens to float64
     consts = np.empty(3, float_proto.dtype)
     consts[0] = 0
@@ -156,10 +358,21 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
     float_one = consts[1]
     cap_f = consts[2]
 
-    # per length n, sum over rationals of the count of each symbol; per symbol, sum of count**2
-    by_length = np.zeros((RING + 1, PACKED_SYMBOLS), np.int64)
-    squares = np.zeros(PACKED_SYMBOLS, np.int64)
-    words = max_k >= 2
+    b_small = np.zeros(BUFFER, np.uint64)
+    b_mid = np.zeros(BUFFER, np.uint64)
+    b_high = np.zeros(BUFFER, np.uint64)
+    b_n = np.zeros(BUFFER, np.int64)
+    b_row = np.zeros(BUFFER, np.int64)
+    b_sym1 = np.zeros(BUFFER, np.int64)
+    b_c1 = np.zeros(BUFFER, np.int64)
+    b_c2 = np.zeros(BUFFER, np.int64)
+    b_own = np.zeros(BUFFER, np.int64)
+    b_mirror = np.zeros(BUFFER, np.int64)
+    nb = 0
+    sym_total = np.zeros(PACKED_SYMBOLS, np.int64)
+    sym_weighted = np.zeros(PACKED_SYMBOLS, np.int64)
+    sym_squares = np.zeros(PACKED_SYMBOLS, np.int64)
+
     n_words = word_sums.shape[0]
     wtab = np.zeros((n_words if words else 1, 4), np.int64)
     offsets = np.zeros(max_k + 2, np.int64)
@@ -168,22 +381,222 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
     codes = np.zeros(max_k + 1, np.int64)
     stamp = np.int64(0)
 
-    state = np.zeros(2, np.int64)
-    state[0] = q_first
+    row2 = offsets[2] if max_k >= 2 else 0
+    row3 = offsets[3] if max_k >= 3 else 0
+    d_row = np.zeros(8, np.int64)
+    d_sign = np.zeros(8, np.int64)
+    d_m = np.zeros(8, np.int64)
+
+    has_num = num_ok.shape[0] > 0
+    has_den = den_ok.shape[0] > 0
+    gen_q = q_first
+    gen_p = np.int64(0)
+    more = q_first <= q_hi
     n_active = 0
-    for lane in range(LANES):
-        if _next_member(state, q_hi, q_step, num_ok, den_ok):
-            xf[lane] = state[0]
-            yf[lane] = state[1]
-            lane_q[lane] = state[0]
-            active[lane] = 1
-            n_active += 1
-        else:
+    t = np.int64(-1)
+    # lane refills happen at the end of step t; the first fill is "step -1"
+    ended = ~_U0
+    while True:
+        # Phase 3 (and the first fill): book finished lanes, refill them from the next fractions.
+        while ended != _U0:
+            lane = np.int64(trailing_zeros(ended))
+            ended &= ended - _U1
+            if active[lane]:
+                if (not coprime_only) or xf[lane] == float_one:
+                    if nb == BUFFER:
+                        _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_c1, b_c2,
+                                        b_own, b_mirror, cap, sym_total, sym_weighted, sym_squares,
+                                        length_hist, per_den)
+                        nb = 0
+                    n = t - t_first[lane] + 1
+                    b_small[nb] = small[lane]
+                    b_mid[nb] = mid[lane]
+                    b_high[nb] = high[lane]
+                    b_n[nb] = n
+                    b_row[nb] = lane_row[lane]
+                    b_sym1[nb] = lane_sym1[lane]
+                    b_c1[nb] = np.int64(count1[lane])
+                    b_c2[nb] = np.int64(count2[lane])
+                    b_own[nb] = lane_own[lane]
+                    b_mirror[nb] = lane_mirror[lane]
+                    nb += 1
+                    if words:
+                        stamp += 1
+                        own = lane_own[lane]
+                        mirror = lane_mirror[lane]
+                        sym1 = lane_sym1[lane]
+                        sym_mirror2 = cap - 1 if sym1 == cap else sym1 - 1
+                        tf = t_first[lane]
+                        if max_k <= 3:
+                            # _record_words_pair written out for max_k <= 3: a call with array
+                            # arguments costs atomic reference-count updates per finished lane
+                            weight = own + mirror
+                            add2 = own * (n - 1) + mirror * n
+                            add3 = own * (n - 2) + mirror * (n - 1)
+                            prev1 = np.int64(ring[tf & RING_MASK, lane])
+                            prev2 = np.int64(0)
+                            for j in range(1, n):
+                                s = np.int64(ring[(tf + j) & RING_MASK, lane])
+                                code2 = prev1 * cap + s
+                                idx = row2 + code2
+                                v = wtab[idx, 3]
+                                before = (v & 255) if (v >> 8) == stamp else 0
+                                wtab[idx, 3] = (stamp << 8) | (before + 1)
+                                wtab[idx, 0] += weight
+                                wtab[idx, 1] += weight * before
+                                wtab[idx, 2] += add2
+                                if max_k == 3 and j >= 2:
+                                    idx = row3 + prev2 * cap + s
+                                    v = wtab[idx, 3]
+                                    before = (v & 255) if (v >> 8) == stamp else 0
+                                    wtab[idx, 3] = (stamp << 8) | (before + 1)
+                                    wtab[idx, 0] += weight
+                                    wtab[idx, 1] += weight * before
+                                    wtab[idx, 2] += add3
+                                prev2 = code2
+                                prev1 = s
+                            if mirror != 0:
+                                # the mirror's changes at its first two positions, as in
+                                # _record_words_pair: (word row, +1 or -1, m of the mirror)
+                                s_1 = np.int64(ring[tf & RING_MASK, lane])
+                                s_2 = np.int64(ring[(tf + 1) & RING_MASK, lane])
+                                s_3 = np.int64(ring[(tf + 2) & RING_MASK, lane])
+                                nd = 0
+                                if n >= 2:
+                                    d_row[nd] = row2 + s_1 * cap + s_2
+                                    d_sign[nd] = -1
+                                    d_m[nd] = n
+                                    nd += 1
+                                d_row[nd] = row2 + sym_mirror2
+                                d_sign[nd] = 1
+                                d_m[nd] = n
+                                nd += 1
+                                if n >= 2:
+                                    d_row[nd] = row2 + sym_mirror2 * cap + s_2
+                                    d_sign[nd] = 1
+                                    d_m[nd] = n
+                                    nd += 1
+                                if max_k == 3 and n >= 2:
+                                    if n >= 3:
+                                        d_row[nd] = row3 + (s_1 * cap + s_2) * cap + s_3
+                                        d_sign[nd] = -1
+                                        d_m[nd] = n - 1
+                                        nd += 1
+                                    d_row[nd] = row3 + sym_mirror2 * cap + s_2
+                                    d_sign[nd] = 1
+                                    d_m[nd] = n - 1
+                                    nd += 1
+                                    if n >= 3:
+                                        d_row[nd] = row3 + (sym_mirror2 * cap + s_2) * cap + s_3
+                                        d_sign[nd] = 1
+                                        d_m[nd] = n - 1
+                                        nd += 1
+                                for d in range(nd):
+                                    idx = d_row[d]
+                                    delta = d_sign[d]
+                                    v = wtab[idx, 3]
+                                    count = (v & 255) if (v >> 8) == stamp else 0
+                                    if delta > 0:
+                                        wtab[idx, 1] += count
+                                        count += 1
+                                    else:
+                                        count -= 1
+                                        wtab[idx, 1] -= count
+                                    wtab[idx, 3] = (stamp << 8) | count
+                                    wtab[idx, 0] += delta
+                                    wtab[idx, 2] += delta * d_m[d]
+                        else:
+                            _record_words_pair(ring, lane, tf, n, max_k, cap, offsets, codes, wtab,
+                                               stamp, own, mirror, sym_mirror2)
+                active[lane] = 0
+                n_active -= 1
             xf[lane] = 2
             yf[lane] = 1
-
-    t = np.int64(0)
-    while n_active > 0:
+            small[lane] = _U0
+            mid[lane] = _U0
+            high[lane] = _U0
+            while more:
+                # next p with 2p < q where p/q (flags bit 0) or its mirror (bit 1) is a member; the
+                # middle fraction p = q/2 is booked after the loop
+                gen_p += 1
+                if 2 * gen_p >= gen_q or (has_den and den_ok[gen_q] == 0):
+                    gen_q += q_step
+                    gen_p = 0
+                    more = gen_q <= q_hi
+                    continue
+                if has_num:
+                    flags = np.int64(num_ok[gen_p] != 0) | (np.int64(num_ok[gen_q - gen_p] != 0) << 1)
+                    if flags == 0:
+                        continue
+                else:
+                    flags = np.int64(3)
+                q = gen_q
+                p = gen_p
+                # first quotient in scalar float64: floor(q/p) is exact for q < 2**52
+                a1 = np.int64(np.float64(q) / np.float64(p))
+                r = q - a1 * p
+                if r < 0:
+                    a1 -= 1
+                    r += p
+                elif r >= p:
+                    a1 += 1
+                    r -= p
+                sym1 = (a1 if a1 <= cap else cap + 1) - 1
+                s_counted = sym1 if sym1 < cap else cap - 1
+                first = _U1 << (np.uint64(s_counted) * _U8) if s_counted < 8 else _U0
+                first_mid = (_U1 << (np.uint64(s_counted - 8) * _U4)
+                             if (s_counted >= 8) & (s_counted < 24) else _U0)
+                first_high = _U1 << (np.uint64(s_counted - 24) * _U4) if s_counted >= 24 else _U0
+                own = flags & 1
+                mirror = flags >> 1
+                if r == 0:
+                    # p divides q: the expansion is [a1]; gcd(p, q) = p
+                    if (not coprime_only) or p == 1:
+                        if nb == BUFFER:
+                            _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_c1, b_c2,
+                                            b_own, b_mirror, cap, sym_total, sym_weighted, sym_squares,
+                                            length_hist, per_den)
+                            nb = 0
+                        b_small[nb] = first
+                        b_mid[nb] = first_mid
+                        b_high[nb] = first_high
+                        b_n[nb] = 1
+                        b_row[nb] = q - q_base
+                        b_sym1[nb] = sym1
+                        b_c1[nb] = 1
+                        b_c2[nb] = np.int64(sym1 == cap)
+                        b_own[nb] = own
+                        b_mirror[nb] = mirror
+                        nb += 1
+                        if words and mirror != 0:
+                            # the mirror [1, a1 - 1] has the single word of length 2 (0, s)
+                            s2 = cap - 1 if sym1 == cap else sym1 - 1
+                            idx = offsets[2] + s2
+                            wtab[idx, 0] += 1
+                            wtab[idx, 2] += 1
+                    continue
+                xf[lane] = p
+                yf[lane] = r
+                small[lane] = first
+                mid[lane] = first_mid
+                high[lane] = first_high
+                lane_row[lane] = q - q_base
+                lane_sym1[lane] = sym1
+                lane_d1[lane] = s_counted + 1
+                lane_d2[lane] = cap if sym1 == cap else sym1
+                count1[lane] = 1
+                count2[lane] = sym1 == cap
+                lane_own[lane] = own
+                lane_mirror[lane] = mirror
+                t_first[lane] = t
+                if words:
+                    ring[t & RING_MASK, lane] = np.uint8(s_counted)
+                active[lane] = 1
+                n_active += 1
+                break
+        if n_active == 0:
+            break
+        t += 1
         slot = t & RING_MASK
         # Phase 1: one Euclid step in every lane, branch-free so that LLVM vectorises it.
         for lane in range(LANES):
@@ -192,79 +605,48 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
             a = np.floor(xv / yv)
             # a is the quotient or one too big; the sign test is exact (see the module docstring)
             a = a - float_one * (xv - a * yv < float_zero)
-            quot[lane] = min(a, cap_f)
+            digit = min(a, cap_f)
+            quot[lane] = digit
+            count1[lane] += float_one * (digit == lane_d1[lane])
+            count2[lane] += float_one * (digit == lane_d2[lane])
             xf[lane] = yv
             yf[lane] = xv - a * yv
+        if words:
+            for lane in range(LANES):
+                ring[slot, lane] = np.uint8(quot[lane]) - np.uint8(1)
+        if cap > 8:
+            for lane in range(LANES):
+                su = np.uint64(quot[lane]) - _U1
+                small[lane] += np.uint64(su < _U8) << ((su * _U8) & _U63)
+                mid[lane] += np.uint64((su >= _U8) & (su < _U24)) << (((su - _U8) * _U4) & _U63)
+                high[lane] += np.uint64(su >= _U24) << (((su - _U24) * _U4) & _U63)
+        else:
+            for lane in range(LANES):
+                su = np.uint64(quot[lane]) - _U1
+                small[lane] += _U1 << ((su * _U8) & _U63)
+        # Phase 2: bit mask of the lanes whose expansion just ended (an OR reduction LLVM vectorises).
+        ended = _U0
         for lane in range(LANES):
-            su = np.uint64(quot[lane]) - _U1
-            ring[slot, lane] = su
-            small[lane] += np.uint64(su < _U8) << ((su * _U8) & _U63)
-            mid[lane] += np.uint64((su >= _U8) & (su < _U24)) << (((su - _U8) * _U4) & _U63)
-            high[lane] += np.uint64(su >= _U24) << (((su - _U24) * _U4) & _U63)
-        # Phase 2: indices of the lanes whose expansion just ended.
-        n_done = 0
-        for lane in range(LANES):
-            finished[n_done] = lane
-            n_done += yf[lane] == float_zero
-        # Phase 3: book the finished rationals and refill their lanes.
-        for j in range(n_done):
-            lane = finished[j]
-            if active[lane]:
-                n = t - t_first[lane] + 1
-                if (not coprime_only) or xf[lane] == float_one:
-                    length_hist[n] += 1
-                    v0 = small[lane]
-                    row = lane_q[lane] - q_base
-                    per_den[row, 0] += 1
-                    per_den[row, 1] += n
-                    for d in range(ROW_DIGITS):
-                        per_den[row, 2 + d] += np.int64((v0 >> (np.uint64(d) * _U8)) & _U255)
-                    for sym in range(8):
-                        c = np.int64((v0 >> (np.uint64(sym) * _U8)) & _U255)
-                        by_length[n, sym] += c
-                        squares[sym] += c * c
-                    if cap > 8:
-                        v1 = mid[lane]
-                        for sym in range(16):
-                            c = np.int64((v1 >> (np.uint64(sym) * _U4)) & _U15)
-                            by_length[n, 8 + sym] += c
-                            squares[8 + sym] += c * c
-                    if cap > 24:
-                        v2 = high[lane]
-                        for sym in range(16):
-                            c = np.int64((v2 >> (np.uint64(sym) * _U4)) & _U15)
-                            by_length[n, 24 + sym] += c
-                            squares[24 + sym] += c * c
-                    if words:
-                        stamp += 1
-                        _record_words(ring, RING_MASK, lane, t_first[lane], n, 2, max_k, cap,
-                                      offsets, codes,
-                                      wtab, stamp)
-            small[lane] = _U0
-            mid[lane] = _U0
-            high[lane] = _U0
-            t_first[lane] = t + 1
-            if active[lane] and _next_member(state, q_hi, q_step, num_ok, den_ok):
-                xf[lane] = state[0]
-                yf[lane] = state[1]
-                lane_q[lane] = state[0]
-            else:
-                if active[lane]:
-                    active[lane] = 0
-                    n_active -= 1
-                xf[lane] = 2
-                yf[lane] = 1
-        t += 1
+            ended |= np.uint64(yf[lane] == float_zero) << np.uint64(lane)
 
+    _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_c1, b_c2, b_own, b_mirror, cap,
+                    sym_total, sym_weighted, sym_squares, length_hist, per_den)
+    # the middle fraction (q/2)/q = [0; 2] of even q is its own mirror; gcd = q/2
+    for q in range(q_first, q_hi + 1, q_step):
+        if q % 2 == 0 and ((not has_den) or den_ok[q] != 0) and ((not has_num) or num_ok[q // 2] != 0) \
+                and ((not coprime_only) or q == 2):
+            length_hist[1] += 1
+            sym_total[1] += 1
+            sym_weighted[1] += 1
+            sym_squares[1] += 1
+            row = q - q_base
+            per_den[row, 0] += 1
+            per_den[row, 1] += 1
+            per_den[row, 3] += 1
     for sym in range(cap):
-        total = np.int64(0)
-        weighted = np.int64(0)
-        for n in range(1, RING + 1):
-            total += by_length[n, sym]
-            weighted += by_length[n, sym] * n
-        word_sums[sym, 0] += total
-        word_sums[sym, 1] += squares[sym]
-        word_sums[sym, 2] += weighted
+        word_sums[sym, 0] += sym_total[sym]
+        word_sums[sym, 1] += sym_squares[sym]
+        word_sums[sym, 2] += sym_weighted[sym]
     if words:
         _words_to_sums(wtab, offsets[2], word_sums)
 

@@ -107,3 +107,167 @@ void cf_lockstep(int64_t q_lo, int64_t q_hi, int64_t cap, int n_threads,
     for (int64_t q = q_lo; q <= q_hi; q++)
         for (int d = 0; d < 4; d++) if (d >= cap - 1) per_den[(q - q_lo) * 6 + 2 + d] = -1;
 }
+
+/* cf_avx512: the strongest reference. 64 lanes = 4 groups of 16 float32 lanes (AVX-512), quotient by
+ * vdivps + round down + one exact correction, per-lane packed 32-bit counters (bytes for symbols 0..7,
+ * nibbles for 8..31: a symbol >= 8 is a digit >= 9 and 9^c <= q bounds its count by 9), counters
+ * summed branch-free into per-lane 16-bit fields when a lane finishes, a scalar pass only for the
+ * finished lanes (length, per-denominator row, refill). With mirror = 1 only p < q/2 are expanded,
+ * from their second partial quotient on, and (q - p)/q = [0; 1, a1 - 1, a2, ...] is booked from the same
+ * expansion (the same algorithm as the cfsweep kernel). Requires cap <= 32 and q_hi < 2^24. */
+#include <immintrin.h>
+
+#define GROUPS 4
+#define NCNT 5
+#define NACC 16
+#define FLUSH_STEPS 8192  /* a 16-bit field grows by at most 4 per step (mirror: counts twice) */
+
+static inline void avx_book_counts(uint32_t cnt[NCNT][LANES], uint32_t acc[NACC][LANES], int g,
+                                   __mmask16 done, int twice) {
+    const __m512i m8 = _mm512_set1_epi32(0x00FF00FF), m4 = _mm512_set1_epi32(0x000F000F);
+    int a = 0;
+    for (int c = 0; c < NCNT; c++) {
+        __m512i v = _mm512_load_si512(&cnt[c][16 * g]);
+        int parts = c < 2 ? 2 : 4, width = c < 2 ? 8 : 4;
+        for (int j = 0; j < parts; j++, a++) {
+            __m512i f = _mm512_and_si512(_mm512_srlv_epi32(v, _mm512_set1_epi32(j * width)), c < 2 ? m8 : m4);
+            if (twice) f = _mm512_slli_epi32(f, 1);
+            __m512i s = _mm512_load_si512(&acc[a][16 * g]);
+            _mm512_store_si512(&acc[a][16 * g], _mm512_mask_add_epi32(s, done, s, f));
+        }
+    }
+}
+
+/* symbol of field f (16-bit half h) of accumulator a */
+static void avx_flush(uint32_t acc[NACC][LANES], int64_t *h) {
+    int a = 0;
+    for (int c = 0; c < NCNT; c++) {
+        int parts = c < 2 ? 2 : 4, base = c == 0 ? 0 : c == 1 ? 4 : 8 + 8 * (c - 2);
+        for (int j = 0; j < parts; j++, a++) {
+            int s_lo = c < 2 ? base + j : base + j, s_hi = c < 2 ? base + j + 2 : base + j + 4;
+            for (int l = 0; l < LANES; l++) {
+                h[s_lo] += acc[a][l] & 0xFFFF;
+                h[s_hi] += acc[a][l] >> 16;
+                acc[a][l] = 0;
+            }
+        }
+    }
+}
+
+
+typedef struct { int64_t q; int64_t p; } half_t;
+
+void cf_avx512(int64_t q_lo, int64_t q_hi, int64_t cap, int n_threads, int mirror,
+               int64_t *hist, int64_t *lengths, int64_t *per_den) {
+    memset(per_den, 0, sizeof(int64_t) * 6 * (q_hi - q_lo + 1));
+    #pragma omp parallel num_threads(n_threads)
+    {
+        int tid = omp_get_thread_num(), nt = omp_get_num_threads();
+        int64_t h[64] = {0}, lh[MAXLEN] = {0};
+        float xs[LANES] __attribute__((aligned(64))), ys[LANES] __attribute__((aligned(64)));
+        uint32_t cnt[NCNT][LANES] __attribute__((aligned(64)));
+        uint32_t acc[NACC][LANES] __attribute__((aligned(64)));
+        int32_t start[LANES], sym1[LANES]; int64_t lq[LANES];
+        __mmask16 active[GROUPS] = {0};
+        memset(cnt, 0, sizeof cnt); memset(acc, 0, sizeof acc);
+        int64_t q = q_lo + tid, p = 0;  /* generator state */
+        int n_active = 0;
+        const float capf = (float)cap;
+        int32_t t = -1;
+        /* refill lane l at the end of step t; returns 1 if it got a fraction */
+        #define NEXT_FRACTION() ({ int got = 0; \
+            while (!got && q <= q_hi) { \
+                p++; \
+                if (mirror ? (2 * p >= q) : (p >= q)) { \
+                    if (mirror && q % 2 == 0) { /* (q/2)/q = [0; 2], its own mirror */ \
+                        int64_t *row = per_den + (q - q_lo) * 6; \
+                        row[0]++; row[1]++; row[3]++; h[1]++; lh[1]++; } \
+                    q += nt; p = 0; continue; } \
+                if (!mirror) { xs[l] = (float)q; ys[l] = (float)p; cnt[0][l] = cnt[1][l] = cnt[2][l] = cnt[3][l] = cnt[4][l] = 0; \
+                    start[l] = t + 1; got = 1; break; } \
+                int64_t a1 = (uint32_t)q / (uint32_t)p, r = q - a1 * p; \
+                int s1 = (int)(a1 < cap ? a1 : cap) - 1, s2 = a1 - 1 < cap ? (int)a1 - 2 : (int)cap - 1; \
+                if (r == 0) { /* [a1] and its mirror [1, a1 - 1] */ \
+                    int64_t *row = per_den + (q - q_lo) * 6; \
+                    h[s1]++; h[0]++; h[s2]++; lh[1]++; lh[2]++; row[0] += 2; row[1] += 3; \
+                    if (s1 < 4) row[2 + s1]++; row[2]++; if (s2 < 4) row[2 + s2]++; continue; } \
+                xs[l] = (float)p; ys[l] = (float)r; \
+                cnt[0][l] = s1 < 4 ? 1u << (8 * s1) : 0; cnt[1][l] = (s1 >= 4 && s1 < 8) ? 1u << (8 * (s1 - 4)) : 0; \
+                for (int c = 2; c < NCNT; c++) cnt[c][l] = (s1 >= 8 + 8 * (c - 2) && s1 < 16 + 8 * (c - 2)) ? 1u << (4 * ((s1 - 8) % 8)) : 0; \
+                sym1[l] = (int)(a1 <= cap ? a1 - 1 : cap); start[l] = t; got = 1; } \
+            got; })
+        for (int l = 0; l < LANES; l++) {
+            if (NEXT_FRACTION()) { lq[l] = q; active[l / 16] |= (__mmask16)(1u << (l % 16)); n_active++; }
+            else { xs[l] = 2.f; ys[l] = 1.f; }
+        }
+        const __m512 zero = _mm512_setzero_ps(), one = _mm512_set1_ps(1.f), vcap = _mm512_set1_ps(capf);
+        const __m512i ione = _mm512_set1_epi32(1);
+        int since_flush = 0;
+        while (n_active > 0) {
+            t++;
+            for (int g = 0; g < GROUPS; g++) {
+                __m512 x = _mm512_load_ps(xs + 16 * g), y = _mm512_load_ps(ys + 16 * g);
+                __m512 a = _mm512_roundscale_ps(_mm512_div_ps(x, y), _MM_FROUND_TO_NEG_INF | _MM_FROUND_NO_EXC);
+                __m512 r = _mm512_fnmadd_ps(a, y, x);
+                __mmask16 neg = _mm512_cmp_ps_mask(r, zero, _CMP_LT_OQ);
+                a = _mm512_mask_sub_ps(a, neg, a, one);
+                r = _mm512_mask_add_ps(r, neg, r, y);
+                __m512i s = _mm512_sub_epi32(_mm512_cvttps_epi32(_mm512_min_ps(a, vcap)), ione);
+                _mm512_store_ps(xs + 16 * g, y);
+                _mm512_store_ps(ys + 16 * g, r);
+                __m512i c0 = _mm512_load_si512(&cnt[0][16 * g]);
+                __m512i c1 = _mm512_load_si512(&cnt[1][16 * g]);
+                __m512i c2 = _mm512_load_si512(&cnt[2][16 * g]);
+                __m512i c3 = _mm512_load_si512(&cnt[3][16 * g]);
+                __m512i c4 = _mm512_load_si512(&cnt[4][16 * g]);
+                c0 = _mm512_add_epi32(c0, _mm512_sllv_epi32(ione, _mm512_slli_epi32(s, 3)));
+                c1 = _mm512_add_epi32(c1, _mm512_sllv_epi32(ione, _mm512_slli_epi32(_mm512_sub_epi32(s, _mm512_set1_epi32(4)), 3)));
+                c2 = _mm512_add_epi32(c2, _mm512_sllv_epi32(ione, _mm512_slli_epi32(_mm512_sub_epi32(s, _mm512_set1_epi32(8)), 2)));
+                c3 = _mm512_add_epi32(c3, _mm512_sllv_epi32(ione, _mm512_slli_epi32(_mm512_sub_epi32(s, _mm512_set1_epi32(16)), 2)));
+                c4 = _mm512_add_epi32(c4, _mm512_sllv_epi32(ione, _mm512_slli_epi32(_mm512_sub_epi32(s, _mm512_set1_epi32(24)), 2)));
+                _mm512_store_si512(&cnt[0][16 * g], c0);
+                _mm512_store_si512(&cnt[1][16 * g], c1);
+                _mm512_store_si512(&cnt[2][16 * g], c2);
+                _mm512_store_si512(&cnt[3][16 * g], c3);
+                _mm512_store_si512(&cnt[4][16 * g], c4);
+                __mmask16 ended = _mm512_cmp_ps_mask(r, zero, _CMP_EQ_OQ);
+                if (!ended) continue;
+                __mmask16 done = ended & active[g];
+                if (done) avx_book_counts(cnt, acc, g, done, mirror);
+                for (unsigned m = ended; m; m &= m - 1) {
+                    int l = 16 * g + __builtin_ctz(m);
+                    if (active[g] & (1u << (l % 16))) {
+                        int n = t - start[l] + 1;
+                        int64_t *row = per_den + (lq[l] - q_lo) * 6;
+                        uint32_t v = cnt[0][l];
+                        if (mirror) {
+                            int s1 = sym1[l], pooled = s1 == cap;
+                            if (pooled) s1 = cap - 1;
+                            int s2 = pooled ? cap - 1 : s1 - 1;
+                            h[0]++; h[s1]--; h[s2]++;
+                            lh[n]++; lh[n + 1]++; row[0] += 2; row[1] += 2 * n + 1;
+                            for (int d = 0; d < 4; d++) row[2 + d] += 2 * ((v >> (8 * d)) & 255);
+                            row[2]++; if (s1 < 4) row[2 + s1]--; if (s2 < 4) row[2 + s2]++;
+                        } else {
+                            lh[n]++; row[0]++; row[1] += n;
+                            for (int d = 0; d < 4; d++) row[2 + d] += (v >> (8 * d)) & 255;
+                        }
+                        if (NEXT_FRACTION()) lq[l] = q;
+                        else { active[g] &= (__mmask16)~(1u << (l % 16)); n_active--; xs[l] = 2.f; ys[l] = 1.f;
+                               for (int c = 0; c < NCNT; c++) cnt[c][l] = 0; }
+                    } else {
+                        xs[l] = 2.f; ys[l] = 1.f;
+                        for (int c = 0; c < NCNT; c++) cnt[c][l] = 0;
+                    }
+                }
+            }
+            if (++since_flush == FLUSH_STEPS) { avx_flush(acc, h); since_flush = 0; }
+        }
+        avx_flush(acc, h);
+        #pragma omp critical
+        { merge(hist, h, cap); merge(lengths, lh, MAXLEN); }
+        #undef NEXT_FRACTION
+    }
+    for (int64_t q = q_lo; q <= q_hi; q++)
+        for (int d = 0; d < 4; d++) if (d >= cap - 1) per_den[(q - q_lo) * 6 + 2 + d] = -1;
+}

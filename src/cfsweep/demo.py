@@ -1,4 +1,4 @@
-"""The embedded demo: all fractions vs square-free numerator and denominator, q <= 5000.
+"""The embedded demo: all fractions vs square-free numerator and denominator, q <= 10000.
 
 Scenario (our own): a reader wants to see whether keeping only fractions whose numerator and denominator
 are both square-free changes the digit statistics. The demo sweeps both families, prints their summaries
@@ -15,7 +15,7 @@ from .runs import sweep
 from .tables import analyse, write_run_tables
 from .validate import parse_int
 
-DEMO_MAX_DEN = 5000
+DEMO_MAX_DEN = 10000
 DEMO_FAMILIES = ("all", "squarefree")
 
 

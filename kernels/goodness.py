@@ -12,6 +12,7 @@ import numpy as np
 from numba import prange
 
 from ._jit import parallel, serial
+from .euclid import MAX_LENGTH, expand
 
 _INV_LN2 = 1.0 / math.log(2.0)
 
@@ -31,6 +32,15 @@ def cylinder_measure_f64(digits, start, k):
     den = q * (q + q_prev + p + p_prev)
     sign = 1.0 if k % 2 == 1 else -1.0
     return abs(math.log1p(sign / den)) * _INV_LN2
+
+
+@serial
+def _same_window(digits, a, b, k):
+    """True if digits[a:a+k] == digits[b:b+k]."""
+    for i in range(k):
+        if digits[a + i] != digits[b + i]:
+            return False
+    return True
 
 
 @serial
@@ -55,24 +65,14 @@ def rational_goodness(digits, n, max_k, min_len, eps, required, good_out):
             for j in range(m):
                 first = True
                 for jp in range(j):
-                    same = True
-                    for i in range(k):
-                        if digits[jp + i] != digits[j + i]:
-                            same = False
-                            break
-                    if same:
+                    if _same_window(digits, jp, j, k):
                         first = False
                         break
                 if not first:
                     continue
                 c = 1
                 for jn in range(j + 1, m):
-                    same = True
-                    for i in range(k):
-                        if digits[jn + i] != digits[j + i]:
-                            same = False
-                            break
-                    if same:
+                    if _same_window(digits, jn, j, k):
                         c += 1
                 mu = cylinder_measure_f64(digits, j, k)
                 dev = abs(c / m - mu)
@@ -96,7 +96,7 @@ def _goodness_chunk(q_lo, q_hi, q_step, num_ok, den_ok, coprime_only, max_k, min
     has_num = num_ok.shape[0] > 0
     has_den = den_ok.shape[0] > 0
     n_eps = eps.shape[0]
-    digits = np.empty(128, np.int64)
+    digits = np.empty(MAX_LENGTH, np.int64)
     flags = np.zeros(n_eps, np.uint8)
     q = q_lo
     while q <= q_hi:
@@ -105,17 +105,8 @@ def _goodness_chunk(q_lo, q_hi, q_step, num_ok, den_ok, coprime_only, max_k, min
             for p in range(1, q):
                 if has_num and num_ok[p] == 0:
                     continue
-                x = np.int64(q)
-                y = np.int64(p)
-                n = 0
-                while y != 0:
-                    a = x // y
-                    r = x - a * y
-                    digits[n] = a
-                    n += 1
-                    x = y
-                    y = r
-                if coprime_only and x != 1:
+                n, g = expand(p, q, digits)
+                if coprime_only and g != 1:
                     continue
                 rational_goodness(digits, n, max_k, min_len, eps, required, flags)
                 for e in range(n_eps):
@@ -143,27 +134,18 @@ def goodness_pairs(ps, qs, bin_edges, max_k, min_len, eps, required, n_chunks):
     """Per bin b (bin_edges[b] <= q < bin_edges[b+1]): counts[b, 0] members, counts[b, 1 + e] good ones.
 
     ``ps``, ``qs``: uint64 pairs 0 < p < q < 2**63 (not necessarily reduced); ``bin_edges`` increasing
-    uint64. Integer Euclid on uint64 (exact for every such q).
+    uint64. Integer Euclid in int64 (exact for every such q).
     """
     n_bins = bin_edges.shape[0] - 1
     n_eps = eps.shape[0]
     partial = np.zeros((n_chunks, n_bins, 1 + n_eps), np.int64)
     total = ps.shape[0]
     for c in prange(n_chunks):
-        digits = np.empty(128, np.uint64)
+        digits = np.empty(MAX_LENGTH, np.int64)
         flags = np.zeros(n_eps, np.uint8)
         for i in range(c, total, n_chunks):
             q = np.uint64(qs[i])
-            x = q
-            y = np.uint64(ps[i])
-            n = 0
-            while y != np.uint64(0):
-                a = x // y
-                r = x - a * y
-                digits[n] = a
-                n += 1
-                x = y
-                y = r
+            n, _ = expand(np.int64(ps[i]), np.int64(q), digits)  # q < 2**63 fits int64
             b = np.searchsorted(bin_edges, q, side="right") - 1
             if b < 0 or b >= n_bins:
                 continue

@@ -278,6 +278,11 @@ def main(argv=None) -> int:
     except RunIntegrityError as exc:
         print(f"cfsweep: {exc}", file=sys.stderr)
         return 1
+    except BrokenPipeError:  # output piped into `head` and the like: stop quietly
+        import os
+
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 0
     except KeyboardInterrupt:
         print("cfsweep: interrupted; completed blocks are kept, rerun the same command to resume",
               file=sys.stderr)

@@ -20,7 +20,8 @@ from .errors import UsageError
 from .families import Family, parse_family
 from .goodness import required_counts
 from .kernels.goodness import goodness_pairs
-from .kernels.sampling import CLASS_ANY, CLASS_PRIME, CLASS_SQUAREFREE, divisor_table, icbrt_u64, sample_pairs
+from .kernels.sampling import (CLASS_ANY, CLASS_PRIME, CLASS_SQUAREFREE, divisor_table, icbrt_u64, in_class_u64,
+                               sample_pairs)
 from .kernels.sweep import tally_pairs
 from .validate import check_range, parse_int
 
@@ -79,13 +80,20 @@ def check_nonempty(fam: Family, lo: int, hi: int) -> None:
 
 
 def _in_class_exact(cls: str, m: int) -> bool:
-    import sympy
-
+    """Class membership for any m < 2**64 by the sampler's own exact tests (tested against sympy)."""
     if cls == "any":
         return True
-    if cls == "prime":
-        return bool(sympy.isprime(m))
-    return all(e == 1 for e in sympy.factorint(m).values())
+    return bool(in_class_u64(np.uint64(m), CLASS_CODES[cls], _small_divisors()))
+
+
+_DIVISORS = None
+
+
+def _small_divisors():
+    global _DIVISORS
+    if _DIVISORS is None:
+        _DIVISORS = divisor_table(1 << 16)
+    return _DIVISORS
 
 
 def sample_params(den_ranges, samples, seed, family="all", cap=32, words=3, block_samples=None,

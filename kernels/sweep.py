@@ -242,24 +242,29 @@ def _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_c1, b_c2, 
     0/1 of p/q and of the mirror (length n + 1, counts +1 at symbol 0, -1 at sym1, +1 at the symbol
     of a1 - 1). The common symbols 0..7 are summed by loops over the buffer that LLVM vectorises.
     """
-    # float32 holds these per-flush sums exactly: at most BUFFER * 46 * 95 < 2**24
-    acc_total = np.zeros(8, np.float32)
-    acc_weighted = np.zeros(8, np.float32)
-    acc_squares = np.zeros(8, np.float32)
+    # int32 holds these per-flush sums exactly (at most BUFFER * 46 * 93 < 2**31), and integer
+    # reductions may be reordered, so LLVM vectorises the loops over the buffer (float sums may not be
+    # reordered without fastmath); symbol-outer order makes each sum a plain reduction
+    weight = np.empty(BUFFER, np.int32)
+    weighted_n = np.empty(BUFFER, np.int32)
     for i in range(nb):
-        v = b_small[i]
-        w = np.float32(b_own[i] + b_mirror[i])
-        nw = np.float32((b_own[i] + b_mirror[i]) * b_n[i] + b_mirror[i])
-        for sym in range(8):
-            c = np.float32((v >> (np.uint64(sym) * _U8)) & _U255)
-            cw = c * w
-            acc_total[sym] += cw
-            acc_weighted[sym] += c * nw
-            acc_squares[sym] += c * cw
+        w = np.int32(b_own[i] + b_mirror[i])
+        weight[i] = w
+        weighted_n[i] = w * np.int32(b_n[i]) + np.int32(b_mirror[i])
     for sym in range(8):
-        sym_total[sym] += np.int64(acc_total[sym])
-        sym_weighted[sym] += np.int64(acc_weighted[sym])
-        sym_squares[sym] += np.int64(acc_squares[sym])
+        shift = np.uint64(sym) * _U8
+        acc_total = np.int32(0)
+        acc_weighted = np.int32(0)
+        acc_squares = np.int32(0)
+        for i in range(nb):
+            c = np.int32((b_small[i] >> shift) & _U255)
+            cw = c * weight[i]
+            acc_total += cw
+            acc_weighted += c * weighted_n[i]
+            acc_squares += c * cw
+        sym_total[sym] += np.int64(acc_total)
+        sym_weighted[sym] += np.int64(acc_weighted)
+        sym_squares[sym] += np.int64(acc_squares)
     for i in range(nb):
         own = b_own[i]
         mirror = b_mirror[i]

@@ -88,6 +88,7 @@ _U24 = np.uint64(24)
 _U63 = np.uint64(63)
 _U255 = np.uint64(255)
 _U2_53 = np.uint64(FLOAT64_EXACT)
+_TOP_BIT = np.uint64(1) << np.uint64(63)
 
 
 @serial
@@ -122,13 +123,13 @@ def _word_occurrence(wtab, idx, stamp, delta, m):
     v = wtab[idx, 3]
     count = (v & 255) if (v >> 8) == stamp else 0
     if delta > 0:
-        wtab[idx, 1] += count
+        prior = count
         count += 1
     else:
         count -= 1
-        wtab[idx, 1] -= count
+        prior = -count
     wtab[idx, 3] = (stamp << 8) | count
-    wtab[idx, 0] += delta
+    wtab[idx, 0] += delta + (prior << 32)
     wtab[idx, 2] += delta * m
 
 
@@ -149,8 +150,7 @@ def _record_words_rolling(ring, lane, t_first, n, max_k, cap, offsets, codes, wt
             v = wtab[idx, 3]
             before = (v & 255) if (v >> 8) == stamp else 0
             wtab[idx, 3] = (stamp << 8) | (before + 1)
-            wtab[idx, 0] += weight
-            wtab[idx, 1] += weight * before
+            wtab[idx, 0] += weight * (1 + (before << 32))
             wtab[idx, 2] += own * (n - k + 1) + mirror * (n - k + 2)
         codes[1] = s
 
@@ -183,16 +183,14 @@ def _record_words_pair(ring, lane, t_first, n, max_k, cap, offsets, codes, wtab,
             v = wtab[idx, 3]
             before = (v & 255) if (v >> 8) == stamp else 0
             wtab[idx, 3] = (stamp << 8) | (before + 1)
-            wtab[idx, 0] += weight
-            wtab[idx, 1] += weight * before
+            wtab[idx, 0] += weight * (1 + (before << 32))
             wtab[idx, 2] += add2
             if max_k == 3 and j >= 2:
                 idx = row3 + prev2 * cap + s
                 v = wtab[idx, 3]
                 before = (v & 255) if (v >> 8) == stamp else 0
                 wtab[idx, 3] = (stamp << 8) | (before + 1)
-                wtab[idx, 0] += weight
-                wtab[idx, 1] += weight * before
+                wtab[idx, 0] += weight * (1 + (before << 32))
                 wtab[idx, 2] += add3
             prev2 = code2
             prev1 = s
@@ -230,6 +228,27 @@ def _words_to_sums(wtab, first_row, word_sums):
         word_sums[idx, 0] += wtab[idx, 0]
         word_sums[idx, 1] += wtab[idx, 0] + 2 * wtab[idx, 1]
         word_sums[idx, 2] += wtab[idx, 2]
+
+
+# The sweep's word table packs, in column 0, sum c (low 32 bits) and the sum of prior counts (high 32
+# bits) into one update per occurrence; it is emptied into the int64 sums every 2**20 rationals, within
+# which a word gets at most 2**20 * 2 * 46 < 2**32 occurrences and 2**20 * 2 * (46 * 45 / 2 + 2) < 2**32
+# prior counts, so both fields decode exactly (intermediate borrows cancel in wrapping int64 sums).
+PACKED_WORD_PERIOD_MASK = (1 << 20) - 1
+
+
+@serial
+def _packed_words_to_sums(wtab, first_row, word_sums):
+    """Empty the packed columns 0 (see PACKED_WORD_PERIOD_MASK) and 2 of ``wtab`` into ``word_sums``."""
+    for idx in range(first_row, word_sums.shape[0]):
+        packed = np.uint64(wtab[idx, 0])
+        total = np.int64(packed & np.uint64(0xFFFFFFFF))
+        prior = np.int64(packed >> np.uint64(32))
+        word_sums[idx, 0] += total
+        word_sums[idx, 1] += total + 2 * prior
+        word_sums[idx, 2] += wtab[idx, 2]
+        wtab[idx, 0] = 0
+        wtab[idx, 2] = 0
 
 
 @serial
@@ -278,10 +297,25 @@ def _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_c1, b_c2, 
         per_den[row, 1] += w * n + mirror
         for d in range(ROW_DIGITS):
             per_den[row, 2 + d] += w * np.int64((v0 >> (np.uint64(d) * _U8)) & _U255)
-        # visit only the nonzero 4-bit fields of both rare-symbol words (usually none or one), in
-        # one loop so that its exit is the only hard-to-predict branch
+        # visit only the nonzero 4-bit fields of both rare-symbol words: usually none or one, so two
+        # visits are made branch-free (an empty word gives c = 0 at a valid symbol: with the top bit
+        # forced on, trailing_zeros finds field 15 of a zero word and its count 0), and a loop takes
+        # the rare rest
         v_mid = b_mid[i]
         v_high = b_high[i]
+        for _ in range(2):
+            in_mid = v_mid != _U0
+            v = v_mid if in_mid else v_high
+            field = trailing_zeros(v | _TOP_BIT) >> _U2
+            shift = field * _U4
+            c = np.int64((v >> shift) & _U15)
+            cleared = v & ~(_U15 << shift)
+            v_mid = cleared if in_mid else v_mid
+            v_high = v_high if in_mid else cleared
+            sym = np.int64(field) + (8 if in_mid else 24)
+            sym_total[sym] += c * w
+            sym_weighted[sym] += c * (w * n + mirror)
+            sym_squares[sym] += c * c * w
         while (v_mid | v_high) != _U0:
             in_mid = v_mid != _U0
             v = v_mid if in_mid else v_high
@@ -427,6 +461,8 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                     nb += 1
                     if words:
                         stamp += 1
+                        if (stamp & PACKED_WORD_PERIOD_MASK) == 0:
+                            _packed_words_to_sums(wtab, row2, word_sums)
                         own = lane_own[lane]
                         mirror = lane_mirror[lane]
                         sym1 = lane_sym1[lane]
@@ -447,16 +483,14 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                                 v = wtab[idx, 3]
                                 before = (v & 255) if (v >> 8) == stamp else 0
                                 wtab[idx, 3] = (stamp << 8) | (before + 1)
-                                wtab[idx, 0] += weight
-                                wtab[idx, 1] += weight * before
+                                wtab[idx, 0] += weight * (1 + (before << 32))
                                 wtab[idx, 2] += add2
                                 if max_k == 3 and j >= 2:
                                     idx = row3 + prev2 * cap + s
                                     v = wtab[idx, 3]
                                     before = (v & 255) if (v >> 8) == stamp else 0
                                     wtab[idx, 3] = (stamp << 8) | (before + 1)
-                                    wtab[idx, 0] += weight
-                                    wtab[idx, 1] += weight * before
+                                    wtab[idx, 0] += weight * (1 + (before << 32))
                                     wtab[idx, 2] += add3
                                 prev2 = code2
                                 prev1 = s
@@ -502,13 +536,13 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                                     v = wtab[idx, 3]
                                     count = (v & 255) if (v >> 8) == stamp else 0
                                     if delta > 0:
-                                        wtab[idx, 1] += count
+                                        prior = count
                                         count += 1
                                     else:
                                         count -= 1
-                                        wtab[idx, 1] -= count
+                                        prior = -count
                                     wtab[idx, 3] = (stamp << 8) | count
-                                    wtab[idx, 0] += delta
+                                    wtab[idx, 0] += delta + (prior << 32)
                                     wtab[idx, 2] += delta * d_m[d]
                         else:
                             _record_words_pair(ring, lane, tf, n, max_k, cap, offsets, codes, wtab,
@@ -578,6 +612,10 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                             s2 = cap - 1 if sym1 == cap else sym1 - 1
                             idx = offsets[2] + s2
                             wtab[idx, 0] += 1
+                            # counted as a rational for the flush period of the packed column
+                            stamp += 1
+                            if (stamp & PACKED_WORD_PERIOD_MASK) == 0:
+                                _packed_words_to_sums(wtab, row2, word_sums)
                             wtab[idx, 2] += 1
                     continue
                 xf[lane] = p
@@ -621,13 +659,13 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                 ring[slot, lane] = np.uint8(quot[lane]) - np.uint8(1)
         if cap > 8:
             for lane in range(LANES):
-                su = np.uint64(quot[lane]) - _U1
+                su = np.uint64(np.int32(quot[lane]) - np.int32(1))
                 small[lane] += np.uint64(su < _U8) << ((su * _U8) & _U63)
                 mid[lane] += np.uint64((su >= _U8) & (su < _U24)) << (((su - _U8) * _U4) & _U63)
                 high[lane] += np.uint64(su >= _U24) << (((su - _U24) * _U4) & _U63)
         else:
             for lane in range(LANES):
-                su = np.uint64(quot[lane]) - _U1
+                su = np.uint64(np.int32(quot[lane]) - np.int32(1))
                 small[lane] += _U1 << ((su * _U8) & _U63)
         # Phase 2: bit mask of the lanes whose expansion just ended (an OR reduction LLVM vectorises).
         ended = _U0
@@ -653,7 +691,7 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
         word_sums[sym, 1] += sym_squares[sym]
         word_sums[sym, 2] += sym_weighted[sym]
     if words:
-        _words_to_sums(wtab, offsets[2], word_sums)
+        _packed_words_to_sums(wtab, offsets[2], word_sums)
 
 
 @serial

@@ -42,9 +42,11 @@ How it is fast (see the design note on kernel speed).
   symbols 0..7, 4-bit fields for 8..39: a symbol s >= 8 is a digit >= 9, and 9**c <= q < 2**31 bounds
   its count c by 9); the lane also counts the symbols of a1 and a1 - 1 for the mirror's c**2 sums.
   Finished lanes (a uint64 bit mask, one bit per lane) are copied to a buffer that is booked BUFFER
-  at a time (digit sums in float32, exact below 2**24 per flush).
+  at a time: the sums of symbols 0..7 are int32 reductions over the buffer, symbol by symbol, which
+  LLVM vectorises (exact: below 2**31 per flush); the rare 4-bit fields are visited one by one.
 * Words of length >= 2 are read from a per-lane ring of symbols when the lane finishes (no ring when
-  max_k = 1); the per-word scratch ``stamp << 8 | count`` gives per-rational counts without clearing.
+  max_k = 1); the per-word scratch ``stamp << 8 | count`` gives per-rational counts without clearing,
+  and one packed column holds sum c and the prior-count sum (see PACKED_WORD_PERIOD_MASK).
 * Inside the lane loop no function taking arrays is called per lane (the family generator and the
   word booking for max_k <= 3 are written out): each such call costs atomic reference-count updates.
 * Lanes are refilled from the next fraction as soon as they finish, so they flow across consecutive

@@ -42,9 +42,11 @@ How it is fast (see the design note on kernel speed).
   symbols 0..7, 4-bit fields for 8..39: a symbol s >= 8 is a digit >= 9, and 9**c <= q < 2**31 bounds
   its count c by 9); the lane also counts the symbols of a1 and a1 - 1 for the mirror's c**2 sums.
   Finished lanes (a uint64 bit mask, one bit per lane) are copied to a buffer that is booked BUFFER
-  at a time (digit sums in float32, exact below 2**24 per flush).
+  at a time: the sums of symbols 0..7 are int32 reductions over the buffer, symbol by symbol, which
+  LLVM vectorises (exact: below 2**31 per flush); the rare 4-bit fields are visited one by one.
 * Words of length >= 2 are read from a per-lane ring of symbols when the lane finishes (no ring when
-  max_k = 1); the per-word scratch ``stamp << 8 | count`` gives per-rational counts without clearing.
+  max_k = 1); the per-word scratch ``stamp << 8 | count`` gives per-rational counts without clearing,
+  and one packed column holds sum c and the prior-count sum (see PACKED_WORD_PERIOD_MASK).
 * Inside the lane loop no function taking arrays is called per lane (the family generator and the
   word booking for max_k <= 3 are written out): each such call costs atomic reference-count updates.
 * Lanes are refilled from the next fraction as soon as they finish, so they flow across consecutive
@@ -88,6 +90,7 @@ _U24 = np.uint64(24)
 _U63 = np.uint64(63)
 _U255 = np.uint64(255)
 _U2_53 = np.uint64(FLOAT64_EXACT)
+_TOP_BIT = np.uint64(1) << np.uint64(63)
 
 
 @serial
@@ -122,13 +125,13 @@ def _word_occurrence(wtab, idx, stamp, delta, m):
     v = wtab[idx, 3]
     count = (v & 255) if (v >> 8) == stamp else 0
     if delta > 0:
-        wtab[idx, 1] += count
+        prior = count
         count += 1
     else:
         count -= 1
-        wtab[idx, 1] -= count
+        prior = -count
     wtab[idx, 3] = (stamp << 8) | count
-    wtab[idx, 0] += delta
+    wtab[idx, 0] += delta + (prior << 32)
     wtab[idx, 2] += delta * m
 
 
@@ -149,8 +152,7 @@ def _record_words_rolling(ring, lane, t_first, n, max_k, cap, offsets, codes, wt
             v = wtab[idx, 3]
             before = (v & 255) if (v >> 8) == stamp else 0
             wtab[idx, 3] = (stamp << 8) | (before + 1)
-            wtab[idx, 0] += weight
-            wtab[idx, 1] += weight * before
+            wtab[idx, 0] += weight * (1 + (before << 32))
             wtab[idx, 2] += own * (n - k + 1) + mirror * (n - k + 2)
         codes[1] = s
 
@@ -183,16 +185,14 @@ def _record_words_pair(ring, lane, t_first, n, max_k, cap, offsets, codes, wtab,
             v = wtab[idx, 3]
             before = (v & 255) if (v >> 8) == stamp else 0
             wtab[idx, 3] = (stamp << 8) | (before + 1)
-            wtab[idx, 0] += weight
-            wtab[idx, 1] += weight * before
+            wtab[idx, 0] += weight * (1 + (before << 32))
             wtab[idx, 2] += add2
             if max_k == 3 and j >= 2:
                 idx = row3 + prev2 * cap + s
                 v = wtab[idx, 3]
                 before = (v & 255) if (v >> 8) == stamp else 0
                 wtab[idx, 3] = (stamp << 8) | (before + 1)
-                wtab[idx, 0] += weight
-                wtab[idx, 1] += weight * before
+                wtab[idx, 0] += weight * (1 + (before << 32))
                 wtab[idx, 2] += add3
             prev2 = code2
             prev1 = s
@@ -232,6 +232,27 @@ def _words_to_sums(wtab, first_row, word_sums):
         word_sums[idx, 2] += wtab[idx, 2]
 
 
+# The sweep's word table packs, in column 0, sum c (low 32 bits) and the sum of prior counts (high 32
+# bits) into one update per occurrence; it is emptied into the int64 sums every 2**20 rationals, within
+# which a word gets at most 2**20 * 2 * 46 < 2**32 occurrences and 2**20 * 2 * (46 * 45 / 2 + 2) < 2**32
+# prior counts, so both fields decode exactly (intermediate borrows cancel in wrapping int64 sums).
+PACKED_WORD_PERIOD_MASK = (1 << 20) - 1
+
+
+@serial
+def _packed_words_to_sums(wtab, first_row, word_sums):
+    """Empty the packed columns 0 (see PACKED_WORD_PERIOD_MASK) and 2 of ``wtab`` into ``word_sums``."""
+    for idx in range(first_row, word_sums.shape[0]):
+        packed = np.uint64(wtab[idx, 0])
+        total = np.int64(packed & np.uint64(0xFFFFFFFF))
+        prior = np.int64(packed >> np.uint64(32))
+        word_sums[idx, 0] += total
+        word_sums[idx, 1] += total + 2 * prior
+        word_sums[idx, 2] += wtab[idx, 2]
+        wtab[idx, 0] = 0
+        wtab[idx, 2] = 0
+
+
 @serial
 def _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_c1, b_c2, b_own, b_mirror, cap,
                     sym_total, sym_weighted, sym_squares, length_hist, per_den):
@@ -242,24 +263,29 @@ def _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_c1, b_c2, 
     0/1 of p/q and of the mirror (length n + 1, counts +1 at symbol 0, -1 at sym1, +1 at the symbol
     of a1 - 1). The common symbols 0..7 are summed by loops over the buffer that LLVM vectorises.
     """
-    # float32 holds these per-flush sums exactly: at most BUFFER * 46 * 95 < 2**24
-    acc_total = np.zeros(8, np.float32)
-    acc_weighted = np.zeros(8, np.float32)
-    acc_squares = np.zeros(8, np.float32)
+    # int32 holds these per-flush sums exactly (at most BUFFER * 46 * 93 < 2**31), and integer
+    # reductions may be reordered, so LLVM vectorises the loops over the buffer (float sums may not be
+    # reordered without fastmath); symbol-outer order makes each sum a plain reduction
+    weight = np.empty(BUFFER, np.int32)
+    weighted_n = np.empty(BUFFER, np.int32)
     for i in range(nb):
-        v = b_small[i]
-        w = np.float32(b_own[i] + b_mirror[i])
-        nw = np.float32((b_own[i] + b_mirror[i]) * b_n[i] + b_mirror[i])
-        for sym in range(8):
-            c = np.float32((v >> (np.uint64(sym) * _U8)) & _U255)
-            cw = c * w
-            acc_total[sym] += cw
-            acc_weighted[sym] += c * nw
-            acc_squares[sym] += c * cw
+        w = np.int32(b_own[i] + b_mirror[i])
+        weight[i] = w
+        weighted_n[i] = w * np.int32(b_n[i]) + np.int32(b_mirror[i])
     for sym in range(8):
-        sym_total[sym] += np.int64(acc_total[sym])
-        sym_weighted[sym] += np.int64(acc_weighted[sym])
-        sym_squares[sym] += np.int64(acc_squares[sym])
+        shift = np.uint64(sym) * _U8
+        acc_total = np.int32(0)
+        acc_weighted = np.int32(0)
+        acc_squares = np.int32(0)
+        for i in range(nb):
+            c = np.int32((b_small[i] >> shift) & _U255)
+            cw = c * weight[i]
+            acc_total += cw
+            acc_weighted += c * weighted_n[i]
+            acc_squares += c * cw
+        sym_total[sym] += np.int64(acc_total)
+        sym_weighted[sym] += np.int64(acc_weighted)
+        sym_squares[sym] += np.int64(acc_squares)
     for i in range(nb):
         own = b_own[i]
         mirror = b_mirror[i]
@@ -273,10 +299,25 @@ def _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_c1, b_c2, 
         per_den[row, 1] += w * n + mirror
         for d in range(ROW_DIGITS):
             per_den[row, 2 + d] += w * np.int64((v0 >> (np.uint64(d) * _U8)) & _U255)
-        # visit only the nonzero 4-bit fields of both rare-symbol words (usually none or one), in
-        # one loop so that its exit is the only hard-to-predict branch
+        # visit only the nonzero 4-bit fields of both rare-symbol words: usually none or one, so two
+        # visits are made branch-free (an empty word gives c = 0 at a valid symbol: with the top bit
+        # forced on, trailing_zeros finds field 15 of a zero word and its count 0), and a loop takes
+        # the rare rest
         v_mid = b_mid[i]
         v_high = b_high[i]
+        for _ in range(2):
+            in_mid = v_mid != _U0
+            v = v_mid if in_mid else v_high
+            field = trailing_zeros(v | _TOP_BIT) >> _U2
+            shift = field * _U4
+            c = np.int64((v >> shift) & _U15)
+            cleared = v & ~(_U15 << shift)
+            v_mid = cleared if in_mid else v_mid
+            v_high = v_high if in_mid else cleared
+            sym = np.int64(field) + (8 if in_mid else 24)
+            sym_total[sym] += c * w
+            sym_weighted[sym] += c * (w * n + mirror)
+            sym_squares[sym] += c * c * w
         while (v_mid | v_high) != _U0:
             in_mid = v_mid != _U0
             v = v_mid if in_mid else v_high
@@ -422,6 +463,8 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                     nb += 1
                     if words:
                         stamp += 1
+                        if (stamp & PACKED_WORD_PERIOD_MASK) == 0:
+                            _packed_words_to_sums(wtab, row2, word_sums)
                         own = lane_own[lane]
                         mirror = lane_mirror[lane]
                         sym1 = lane_sym1[lane]
@@ -442,16 +485,14 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                                 v = wtab[idx, 3]
                                 before = (v & 255) if (v >> 8) == stamp else 0
                                 wtab[idx, 3] = (stamp << 8) | (before + 1)
-                                wtab[idx, 0] += weight
-                                wtab[idx, 1] += weight * before
+                                wtab[idx, 0] += weight * (1 + (before << 32))
                                 wtab[idx, 2] += add2
                                 if max_k == 3 and j >= 2:
                                     idx = row3 + prev2 * cap + s
                                     v = wtab[idx, 3]
                                     before = (v & 255) if (v >> 8) == stamp else 0
                                     wtab[idx, 3] = (stamp << 8) | (before + 1)
-                                    wtab[idx, 0] += weight
-                                    wtab[idx, 1] += weight * before
+                                    wtab[idx, 0] += weight * (1 + (before << 32))
                                     wtab[idx, 2] += add3
                                 prev2 = code2
                                 prev1 = s
@@ -497,13 +538,13 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                                     v = wtab[idx, 3]
                                     count = (v & 255) if (v >> 8) == stamp else 0
                                     if delta > 0:
-                                        wtab[idx, 1] += count
+                                        prior = count
                                         count += 1
                                     else:
                                         count -= 1
-                                        wtab[idx, 1] -= count
+                                        prior = -count
                                     wtab[idx, 3] = (stamp << 8) | count
-                                    wtab[idx, 0] += delta
+                                    wtab[idx, 0] += delta + (prior << 32)
                                     wtab[idx, 2] += delta * d_m[d]
                         else:
                             _record_words_pair(ring, lane, tf, n, max_k, cap, offsets, codes, wtab,
@@ -573,6 +614,10 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                             s2 = cap - 1 if sym1 == cap else sym1 - 1
                             idx = offsets[2] + s2
                             wtab[idx, 0] += 1
+                            # counted as a rational for the flush period of the packed column
+                            stamp += 1
+                            if (stamp & PACKED_WORD_PERIOD_MASK) == 0:
+                                _packed_words_to_sums(wtab, row2, word_sums)
                             wtab[idx, 2] += 1
                     continue
                 xf[lane] = p
@@ -616,13 +661,13 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                 ring[slot, lane] = np.uint8(quot[lane]) - np.uint8(1)
         if cap > 8:
             for lane in range(LANES):
-                su = np.uint64(quot[lane]) - _U1
+                su = np.uint64(np.int32(quot[lane]) - np.int32(1))
                 small[lane] += np.uint64(su < _U8) << ((su * _U8) & _U63)
                 mid[lane] += np.uint64((su >= _U8) & (su < _U24)) << (((su - _U8) * _U4) & _U63)
                 high[lane] += np.uint64(su >= _U24) << (((su - _U24) * _U4) & _U63)
         else:
             for lane in range(LANES):
-                su = np.uint64(quot[lane]) - _U1
+                su = np.uint64(np.int32(quot[lane]) - np.int32(1))
                 small[lane] += _U1 << ((su * _U8) & _U63)
         # Phase 2: bit mask of the lanes whose expansion just ended (an OR reduction LLVM vectorises).
         ended = _U0
@@ -648,7 +693,7 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
         word_sums[sym, 1] += sym_squares[sym]
         word_sums[sym, 2] += sym_weighted[sym]
     if words:
-        _words_to_sums(wtab, offsets[2], word_sums)
+        _packed_words_to_sums(wtab, offsets[2], word_sums)
 
 
 @serial

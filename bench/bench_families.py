@@ -16,7 +16,6 @@ import time
 from pathlib import Path
 
 import numba
-import numpy as np
 
 from cfsweep.families import expected_members, parse_family
 from cfsweep.kernels.sweep import sweep_block

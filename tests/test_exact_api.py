@@ -1,6 +1,5 @@
 """exact_counts / exact_table / CLI / fits: schema, checks, refusals, exit codes."""
 import math
-import os
 
 import numpy as np
 import pyarrow.parquet as pq

@@ -1,16 +1,13 @@
 """Invariance under splitting, resume after kill, corrupted blocks, outside Parquet readers, bad input."""
-import json
 import os
 import signal
 import subprocess
 import sys
 import time
-from pathlib import Path
 
 import duckdb
 import numba
 import polars as pl
-import pyarrow.parquet as pq
 import pytest
 
 from cfsweep import frequency_table, open_run, sweep

@@ -1,10 +1,7 @@
 """Sampled runs: determinism, family membership at huge q, exact counts of the drawn pairs, coverage."""
-import math
-from fractions import Fraction
 
 import numpy as np
 import pytest
-import sympy
 
 from cfsweep import frequency_table
 from cfsweep.cli import main

@@ -39,7 +39,7 @@ from cfsweep.errors import UsageError
 from cfsweep.families import parse_family
 from cfsweep.fits import fit_inverse_log
 from cfsweep.kernels import lattice
-from cfsweep.schema import FREQUENCY_SCHEMA, SCHEMA_VERSION, word_label
+from cfsweep.schema import FREQUENCY_SCHEMA, SCHEMA_VERSION, append_frequency_row, word_label
 
 #: Largest max_den with a proven int64-safe computation (see the module docstring).
 MAX_EXACT_DEN = 300_000_000
@@ -424,19 +424,8 @@ def exact_table(result: ExactResult) -> pa.Table:
             count = result.count(name, symbols)
             if count == 0:
                 continue
-            positions = fc.positions[k]
-            freq = count / positions
-            mu = gauss.word_measure(symbols, result.cap)
-            cols["family"].append(fc.family)
-            cols["word"].append(label)
-            cols["k"].append(k)
-            cols["count"].append(count)
-            cols["positions"].append(positions)
-            cols["frequency"].append(freq)
-            cols["gauss_measure"].append(mu)
-            cols["ratio"].append(freq / mu)
-            for c in ("std_error", "ci_low", "ci_high", "z"):
-                cols[c].append(None)
+            append_frequency_row(cols, fc.family, label, k, count, fc.positions[k],
+                                 gauss.word_measure(symbols, result.cap))
     table = pa.table(cols, schema=FREQUENCY_SCHEMA)
     meta = {"cfsweep.method": "exact", "cfsweep.schema_version": str(SCHEMA_VERSION),
             "cfsweep.max_den": str(result.max_den), "cfsweep.cap": str(result.cap)}

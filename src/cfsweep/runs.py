@@ -207,4 +207,3 @@ def sample(out, *, den_range=None, scan=None, samples, seed, family="all", cap=D
                            good_min_len, scan=None if scan is None else str(scan))
     kinds = [k for k in block_kinds(params) if k != "denominators"]
     return _execute(Path(out), "sample", params, plan_sample_blocks(params), kinds, threads, quiet, cluster, shard)
-    return Run(store)

@@ -14,6 +14,7 @@ import math
 import time
 
 import numpy as np
+import pyarrow as pa
 
 from .blocks import goodness_table, tables_from_arrays
 from .errors import UsageError
@@ -167,14 +168,12 @@ def compute_sample_block(params: dict, block: dict, threads: int):
     return tables, record
 
 
-def range_frequencies(store, digits=(1, 2, 3, 4)) -> "pa.Table":
+def range_frequencies(store, digits=(1, 2, 3, 4)) -> pa.Table:
     """Per sampled range: frequency of the digits 1..4 with standard errors and 95% intervals.
 
     Columns: range, q_lo, q_hi (inclusive), samples, word, frequency, std_error, ci_low, ci_high,
     gauss_measure, z. Built from the block sums of each range separately (the rational is the unit).
     """
-    import pyarrow as pa
-
     from .gauss import word_measure
     from .schema import Z95
     from .stats import ratio_standard_error
@@ -216,10 +215,8 @@ def range_frequencies(store, digits=(1, 2, 3, 4)) -> "pa.Table":
     return pa.table(out)
 
 
-def range_convergence(store) -> "pa.Table":
+def range_convergence(store) -> pa.Table:
     """Digit frequencies per sampled range in the shape of a sweep's convergence table (q = range centre)."""
-    import pyarrow as pa
-
     t = range_frequencies(store).to_pydict()
     rows: dict[int, dict] = {}
     for r, lo, hi, n, w, f in zip(t["range"], t["q_lo"], t["q_hi"], t["samples"], t["word"], t["frequency"]):

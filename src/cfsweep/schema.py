@@ -49,6 +49,25 @@ FREQUENCY_SCHEMA = pa.schema(
 )
 
 
+def append_frequency_row(cols: dict[str, list], family: str, word: str, k: int, count: int, positions: int,
+                         gauss_measure: float, std_error: float | None = None) -> None:
+    """Append one row of FREQUENCY_SCHEMA to column lists: frequency, ratio, 95% interval and z derived
+    here, so every table (sweep, sampled, exact) uses the same formulas."""
+    f = count / positions
+    cols["family"].append(family)
+    cols["word"].append(word)
+    cols["k"].append(k)
+    cols["count"].append(count)
+    cols["positions"].append(positions)
+    cols["frequency"].append(f)
+    cols["gauss_measure"].append(gauss_measure)
+    cols["ratio"].append(f / gauss_measure)
+    cols["std_error"].append(std_error)
+    cols["ci_low"].append(None if std_error is None else f - Z95 * std_error)
+    cols["ci_high"].append(None if std_error is None else f + Z95 * std_error)
+    cols["z"].append(None if not std_error else (f - gauss_measure) / std_error)
+
+
 def word_label(symbols: Sequence[int], cap: int | None) -> str:
     """Text of a word: ``"1,2,32+"``; symbols >= cap print as the pooled ``cap+``."""
     return ",".join(f"{cap}+" if cap is not None and s >= cap else str(int(s)) for s in symbols)

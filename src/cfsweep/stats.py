@@ -21,7 +21,7 @@ import pyarrow as pa
 
 from .gauss import word_measure
 from .reduce import MergedRun
-from .schema import FREQUENCY_SCHEMA, Z95, parse_word_label
+from .schema import FREQUENCY_SCHEMA, append_frequency_row, parse_word_label
 
 
 def ratio_standard_error(n: int, c: int, c2: int, cm: int, m: int, m2: int) -> float | None:
@@ -44,25 +44,13 @@ def frequency_rows(merged: MergedRun) -> pa.Table:
     for label, k, c, c2, cm in zip(w["word"], w["k"], w["sum_c"], w["sum_c2"], w["sum_cm"]):
         symbols, _ = parse_word_label(label)
         m, m2 = pos[k]
-        f = c / m
         mu = word_measure(symbols, cap)
         se = ratio_standard_error(merged.members, c, c2, cm, m, m2)
-        rows.append((k, symbols, label, c, m, f, mu, se))
+        rows.append((k, symbols, label, c, m, mu, se))
     rows.sort(key=lambda r: (r[0], r[1]))
     out = {name: [] for name in FREQUENCY_SCHEMA.names}
-    for k, _, label, c, m, f, mu, se in rows:
-        out["family"].append(merged.family.canonical)
-        out["word"].append(label)
-        out["k"].append(k)
-        out["count"].append(c)
-        out["positions"].append(m)
-        out["frequency"].append(f)
-        out["gauss_measure"].append(mu)
-        out["ratio"].append(f / mu)
-        out["std_error"].append(se)
-        out["ci_low"].append(None if se is None else f - Z95 * se)
-        out["ci_high"].append(None if se is None else f + Z95 * se)
-        out["z"].append(None if not se else (f - mu) / se)
+    for k, _, label, c, m, mu, se in rows:
+        append_frequency_row(out, merged.family.canonical, label, k, c, m, mu, se)
     meta = {b"cfsweep.method": merged.method.encode(), b"cfsweep.family": merged.family.canonical.encode()}
     return pa.table(out, schema=FREQUENCY_SCHEMA).replace_schema_metadata(meta)
 

@@ -25,6 +25,13 @@ class _Parser(argparse.ArgumentParser):
         raise UsageError(message)
 
 
+def _add_goodness_options(p):
+    p.add_argument("--good-eps", default=None,
+                   help="count (eps, k)-good members for these tolerances 0 < eps < 1, e.g. 0.05,0.1,0.2")
+    p.add_argument("--good-k", default="1", help="goodness uses words of length <= K (1..6; default 1)")
+    p.add_argument("--good-min-len", default=None, help="good members have length >= L (default: good-k)")
+
+
 def _add_sweep(sub):
     p = sub.add_parser("sweep", help="sweep every member p/q with min-den <= q <= max-den into a run directory",
                        description="Exhaustive sweep into Parquet block files. Rerunning the same command "
@@ -41,10 +48,7 @@ def _add_sweep(sub):
     p.add_argument("--predicate", default=None,
                    help="module:function of a @numba.njit (p, q) -> bool that narrows the family "
                         "(the module is imported from the Python path or the current directory)")
-    p.add_argument("--good-eps", default=None,
-                   help="count (eps, k)-good members per denominator for these tolerances, e.g. 0.05,0.1,0.2")
-    p.add_argument("--good-k", default="1", help="goodness uses words of length <= K (1..6; default 1)")
-    p.add_argument("--good-min-len", default=None, help="good members have length >= L (default: good-k)")
+    _add_goodness_options(p)
     p.add_argument("--cluster", default=None, help="run the blocks on Dask: tcp://HOST:PORT (a running "
                    "scheduler; the run directory must be shared with its workers) or local:N (N worker "
                    "processes here); see docs/cluster.md")
@@ -120,9 +124,7 @@ def _add_sample(sub):
     p.add_argument("--block-samples", default=None, help="samples per block (default 2^20)")
     p.add_argument("--cluster", default=None, help="run the blocks on Dask: tcp://HOST:PORT or local:N")
     p.add_argument("--shard", default=None, help="I/N: only the blocks with index = I (mod N), 0 <= I < N")
-    p.add_argument("--good-eps", default=None, help="tolerances for goodness counts, e.g. 0.05,0.1,0.2")
-    p.add_argument("--good-k", default="1", help="goodness word length K (1..6; default 1)")
-    p.add_argument("--good-min-len", default=None, help="minimum length of a good member (default: good-k)")
+    _add_goodness_options(p)
     p.add_argument("--threads", default=None, help="Numba threads (default: all cores)")
     p.add_argument("--out", required=True, help="run directory")
     p.add_argument("--quiet", action="store_true", help="no progress bar")

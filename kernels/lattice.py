@@ -293,53 +293,20 @@ def _sieve_limit(q):
 
 
 @serial
-def mertens_on_grid(q, vals):
-    """M(v) = sum_{n <= v} mu(n) for every v in ``vals = divisor_grid(q)``.
+def _summatory_on_grid(q, vals, values, triangular_top):
+    """F(v) = sum_{n <= v} values[n] for every v in ``vals``, for a function f with sum_{d | n} f(d)
+    equal to [n = 1] (Möbius, ``triangular_top`` False) or n (Euler phi, True).
 
-    A mu sieve to about q**(2/3), then M(x) = 1 - sum_{g=2}^{x} M(x // g) grouped by equal quotients.
+    ``values`` is the sieve of f up to lim ~ q**(2/3); above it F(x) = top(x) - sum_{g=2}^{x} F(x // g),
+    grouped by equal quotients, with top(x) = 1 or x(x+1)/2.
     """
     n = vals.shape[0]
     sq = isqrt(q)
-    lim = _sieve_limit(q)
-    mu = mobius_sieve(lim)
+    lim = values.shape[0] - 1
     small = np.zeros(lim + 1, np.int64)
     acc = np.int64(0)
     for i in range(1, lim + 1):
-        acc += mu[i]
-        small[i] = acc
-    out = np.zeros(n, np.int64)
-    for i in range(n):
-        x = vals[i]
-        if x <= lim:
-            out[i] = small[x]
-            continue
-        s = np.int64(0)
-        g = np.int64(2)
-        while g <= x:
-            t = udiv(x, g)
-            g2 = udiv(x, t)
-            mt = small[t] if t <= lim else out[grid_index(t, q, sq, n)]
-            s += (g2 - g + 1) * mt
-            g = g2 + 1
-        out[i] = 1 - s
-    return out
-
-
-@serial
-def totient_summatory_on_grid(q, vals):
-    """Phi(v) = sum_{n <= v} phi(n) for every v in ``vals``.
-
-    A phi sieve to about q**(2/3), then Phi(x) = x(x+1)/2 - sum_{g=2}^{x} Phi(x // g) (from
-    sum_{d | n} phi(d) = n), independent of the Möbius values used elsewhere.
-    """
-    n = vals.shape[0]
-    sq = isqrt(q)
-    lim = _sieve_limit(q)
-    phi = totient_sieve(lim)
-    small = np.zeros(lim + 1, np.int64)
-    acc = np.int64(0)
-    for i in range(1, lim + 1):
-        acc += phi[i]
+        acc += values[i]
         small[i] = acc
     out = np.zeros(n, np.int64)
     for i in range(n):
@@ -355,8 +322,28 @@ def totient_summatory_on_grid(q, vals):
             ft = small[t] if t <= lim else out[grid_index(t, q, sq, n)]
             s += (g2 - g + 1) * ft
             g = g2 + 1
-        out[i] = ((x * (x + 1)) >> 1) - s
+        top = ((x * (x + 1)) >> 1) if triangular_top else np.int64(1)
+        out[i] = top - s
     return out
+
+
+@serial
+def mertens_on_grid(q, vals):
+    """M(v) = sum_{n <= v} mu(n) for every v in ``vals = divisor_grid(q)``.
+
+    A mu sieve to about q**(2/3), then M(x) = 1 - sum_{g=2}^{x} M(x // g) grouped by equal quotients.
+    """
+    return _summatory_on_grid(q, vals, mobius_sieve(_sieve_limit(q)), False)
+
+
+@serial
+def totient_summatory_on_grid(q, vals):
+    """Phi(v) = sum_{n <= v} phi(n) for every v in ``vals``.
+
+    A phi sieve to about q**(2/3), then Phi(x) = x(x+1)/2 - sum_{g=2}^{x} Phi(x // g) (from
+    sum_{d | n} phi(d) = n), independent of the Möbius values used elsewhere.
+    """
+    return _summatory_on_grid(q, vals, totient_sieve(_sieve_limit(q)), True)
 
 
 @serial

@@ -6,7 +6,7 @@ import pytest
 from hypothesis import given, settings, strategies as st
 
 from cfsweep.kernels import sweep, sweep_reference as ref
-from test_kernel_sweep import python_sums
+from test_kernel_sweep import python_sums, sums_from_expansions
 
 EMPTY = np.zeros(0, np.uint8)
 
@@ -42,36 +42,13 @@ def check(pairs, cap, max_k, dtype, serial=True):
     ps = np.array([p for p, _ in pairs], dtype)
     qs = np.array([q for _, q in pairs], dtype)
     # plain Euclid on Python integers, then the same sums as the Fraction twin (integers only)
-    expected = _sums_from_digits([euclid_digits(p, q) for p, q in pairs], cap, max_k)
+    expected = sums_from_expansions([euclid_digits(p, q) for p, q in pairs], cap, max_k)
     if serial:
         for got, exp in zip(sweep.tally_pairs_serial(ps, qs, cap, max_k), expected):
             assert np.array_equal(got, exp)
     for n_chunks in (1, 3):
         for got, exp in zip(sweep.tally_pairs(ps, qs, cap, max_k, n_chunks), expected):
             assert np.array_equal(got, exp)
-
-
-def _sums_from_digits(expansions, cap, max_k):
-    offsets = [0, 0] + [sum(cap ** j for j in range(1, k)) for k in range(2, max_k + 2)]
-    word_sums = np.zeros((offsets[max_k + 1], 3), np.int64)
-    position_sums = np.zeros((max_k + 1, 2), np.int64)
-    length_hist = np.zeros(129, np.int64)
-    for digits in expansions:
-        syms = [min(a, cap) - 1 for a in digits]
-        n = len(syms)
-        length_hist[n] += 1
-        for k in range(1, max_k + 1):
-            m = max(0, n - k + 1)
-            position_sums[k] += (m, m * m)
-            counts = {}
-            for j in range(m):
-                code = 0
-                for s in syms[j:j + k]:
-                    code = code * cap + s
-                counts[code] = counts.get(code, 0) + 1
-            for code, c in counts.items():
-                word_sums[offsets[k] + code] += (c, c * c, c * m)
-    return word_sums, position_sums, length_hist
 
 
 @pytest.mark.parametrize("dtype", [np.int64, np.uint64])

@@ -28,14 +28,17 @@ def fraction_digits(p, q):
 
 def python_sums(pairs, cap, max_k):
     """word_sums, position_sums, length_hist of the given pairs from their Fraction expansions."""
-    offsets = [0] * (max_k + 2)
-    for k in range(1, max_k + 2):
-        offsets[k] = offsets[k - 1] + cap ** (k - 1) if k > 1 else 0
+    return sums_from_expansions([fraction_digits(p, q) for p, q in pairs], cap, max_k)
+
+
+def sums_from_expansions(expansions, cap, max_k):
+    """The kernel's outputs computed in plain Python from lists of partial quotients."""
+    offsets = [0, 0] + [sum(cap ** j for j in range(1, k)) for k in range(2, max_k + 2)]
     word_sums = np.zeros((offsets[max_k + 1], 3), np.int64)
     position_sums = np.zeros((max_k + 1, 2), np.int64)
     length_hist = np.zeros(MAX_LENGTH + 1, np.int64)
-    for p, q in pairs:
-        syms = [min(a, cap) - 1 for a in fraction_digits(p, q)]
+    for digits in expansions:
+        syms = [min(a, cap) - 1 for a in digits]
         n = len(syms)
         length_hist[n] += 1
         for k in range(1, max_k + 1):

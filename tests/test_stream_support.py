@@ -5,22 +5,11 @@ Nothing here uses cfsweep code, so that the tests compare the tool against indep
 from __future__ import annotations
 
 import math
-from fractions import Fraction
 from functools import lru_cache
 
 import sympy
 
-
-def cf_fraction(p: int, q: int) -> list[int]:
-    """Shorter expansion of p/q (0 < p < q) by iterating x -> 1/x - floor(1/x) on Fractions."""
-    x = Fraction(p, q)
-    out = []
-    while x != 0:
-        x = 1 / x
-        a = math.floor(x)
-        out.append(a)
-        x -= a
-    return out
+from reference import cf_fraction
 
 
 @lru_cache(maxsize=None)

@@ -106,13 +106,16 @@ def build_c():
                           str(HERE / "c" / "cfref.c")], check=True, capture_output=True, text=True).stdout
     isa = "AVX-512 (zmm)" if "zmm" in asm else "AVX2 (ymm)" if "ymm" in asm else "SSE"
     dll = ctypes.CDLL(str(lib))
+    dll.cf_simd_isa.restype = ctypes.c_char_p
+    simd = dll.cf_simd_isa().decode()
     p64 = ctypes.POINTER(ctypes.c_int64)
     for name in ("cf_plain", "cf_lockstep"):
         getattr(dll, name).argtypes = [ctypes.c_int64, ctypes.c_int64, ctypes.c_int64, ctypes.c_int,
                                        p64, p64, p64]
-    dll.cf_avx512.argtypes = [ctypes.c_int64, ctypes.c_int64, ctypes.c_int64, ctypes.c_int, ctypes.c_int,
-                              p64, p64, p64]
-    return dll, " ".join(cmd), isa
+    if simd != "none":
+        dll.cf_simd.argtypes = [ctypes.c_int64, ctypes.c_int64, ctypes.c_int64, ctypes.c_int, ctypes.c_int,
+                                p64, p64, p64]
+    return dll, " ".join(cmd), isa, simd
 
 
 def c_runner(dll, name, *extra):
@@ -178,7 +181,9 @@ def main(argv=None):
 
     compile_seconds = {}
     t = time.perf_counter()
-    dll, c_cmd, c_isa = build_c()
+    dll, c_cmd, c_isa, c_simd = build_c()
+    if c_simd == "none":
+        print("this CPU has neither AVX-512 nor AVX2 + FMA: the SIMD C reference is left out", flush=True)
     compile_seconds["c (gcc)"] = time.perf_counter() - t
 
     impls = {
@@ -188,9 +193,10 @@ def main(argv=None):
         "cfsweep_k3": kernel_runner(3),
         "c_plain": c_runner(dll, "cf_plain"),
         "c_lockstep": c_runner(dll, "cf_lockstep"),
-        "c_avx512": c_runner(dll, "cf_avx512", 0),
-        "c_avx512_mirror": c_runner(dll, "cf_avx512", 1),
     }
+    if c_simd != "none":
+        impls[f"c_{c_simd}"] = c_runner(dll, "cf_simd", 0)
+        impls[f"c_{c_simd}_mirror"] = c_runner(dll, "cf_simd", 1)
     for name, fn in impls.items():
         t = time.perf_counter()
         for th in threads_list:
@@ -270,6 +276,7 @@ def main(argv=None):
         "cpu": cpu_info(),
         "c_build": c_cmd,
         "c_instruction_set": c_isa,
+        "c_simd_reference": c_simd,
         "numba": numba.__version__,
         "numba_threading_layer": numba.threading_layer(),
         "compile_seconds": compile_seconds,
@@ -280,6 +287,9 @@ def main(argv=None):
         (out_dir / f"{stem}.json").write_text(json.dumps(result, indent=2) + "\n")
         (out_dir / f"{stem}.md").write_text(markdown(result) + "\n")
     print(markdown(result))
+
+
+SIMD_NAMES = {"avx512": "AVX-512", "avx2": "AVX2 + FMA"}
 
 
 def markdown(r):
@@ -309,9 +319,12 @@ def markdown(r):
               + ", ".join(f"{x:.1f}" for x in r["load_average_1min"]) + " (2 cores, shared machine).",
               "cfsweep_kK: sweep_block with words up to length K and the error-bar sums (even k1 also sums c**2 "
               "and c*m per digit); the C references and numba_plain compute the digit histogram and lengths "
-              "(C also the per-denominator rows) only. c_avx512: AVX-512 intrinsics, 64 float32 lanes, packed "
-              "counters; c_avx512_mirror: the same plus the mirror trick of the cfsweep kernel (expands only "
-              "p < q/2, from the second partial quotient)."]
+              "(C also the per-denominator rows) only. "
+              + (f"c_{r['c_simd_reference']}: {SIMD_NAMES[r['c_simd_reference']]} intrinsics, 64 float32 lanes, "
+                 f"packed counters; c_{r['c_simd_reference']}_mirror: the same plus the mirror trick of the "
+                 "cfsweep kernel (expands only p < q/2, from the second partial quotient)."
+                 if r["c_simd_reference"] != "none" else "No SIMD C reference: the CPU has neither AVX-512 "
+                 "nor AVX2 + FMA.")]
     return "\n".join(lines)
 
 

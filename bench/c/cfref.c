@@ -108,43 +108,118 @@ void cf_lockstep(int64_t q_lo, int64_t q_hi, int64_t cap, int n_threads,
         for (int d = 0; d < 4; d++) if (d >= cap - 1) per_den[(q - q_lo) * 6 + 2 + d] = -1;
 }
 
-/* cf_avx512: the strongest reference. 64 lanes = 4 groups of 16 float32 lanes (AVX-512), quotient by
- * vdivps + round down + one exact correction, per-lane packed 32-bit counters (bytes for symbols 0..7,
- * nibbles for 8..31: a symbol >= 8 is a digit >= 9 and 9^c <= q bounds its count by 9), counters
- * summed branch-free into per-lane 16-bit fields when a lane finishes, a scalar pass only for the
- * finished lanes (length, per-denominator row, refill). With mirror = 1 only p < q/2 are expanded,
- * from their second partial quotient on, and (q - p)/q = [0; 1, a1 - 1, a2, ...] is booked from the same
- * expansion (the same algorithm as the cfsweep kernel). Requires cap <= 32 and q_hi < 2^24. */
+/* cf_simd: the strongest reference, written with intrinsics for the widest vector unit the compiler
+ * targets (-march=native): AVX-512 (4 groups of 16 float32 lanes) or AVX2 + FMA (8 groups of 8), 64
+ * lanes either way. Quotient by vector division + round down + one exact correction (the remainder
+ * x - a*y is formed by one fused multiply-add, exact for operands below 2^24), per-lane packed 32-bit
+ * counters (bytes for symbols 0..7, nibbles for 8..31: a symbol >= 8 is a digit >= 9 and 9^c <= q bounds
+ * its count by 9), counters summed branch-free into per-lane 16-bit fields when a lane finishes, a scalar
+ * pass only for the finished lanes (length, per-denominator row, refill). With mirror = 1 only p < q/2 are
+ * expanded, from their second partial quotient on, and (q - p)/q = [0; 1, a1 - 1, a2, ...] is booked from
+ * the same expansion (the same algorithm as the cfsweep kernel). Requires cap <= 32 and q_hi < 2^24.
+ * cf_simd_isa() names the instruction set compiled in; "none" means cf_simd is not available. */
+#if defined(__AVX512F__) || (defined(__AVX2__) && defined(__FMA__))
 #include <immintrin.h>
 
-#define GROUPS 4
 #define NCNT 5
 #define NACC 16
 #define FLUSH_STEPS 8192  /* a 16-bit field grows by at most 4 per step (mirror: counts twice) */
 
-static inline void avx_book_counts(uint32_t cnt[NCNT][LANES], uint32_t acc[NACC][LANES], int g,
-                                   __mmask16 done, int twice) {
-    const __m512i m8 = _mm512_set1_epi32(0x00FF00FF), m4 = _mm512_set1_epi32(0x000F000F);
+#if defined(__AVX512F__)
+#define GW 16  /* lanes per vector */
+const char *cf_simd_isa(void) { return "avx512"; }
+#else
+#define GW 8
+const char *cf_simd_isa(void) { return "avx2"; }
+#endif
+#define GROUPS (LANES / GW)
+
+/* add the unpacked counters of the lanes in `done` (bit i = lane GW*g + i) to their 16-bit fields */
+static inline void simd_book_counts(uint32_t cnt[NCNT][LANES], uint32_t acc[NACC][LANES], int g,
+                                    uint32_t done, int twice) {
     int a = 0;
+#if defined(__AVX512F__)
+    const __m512i m8 = _mm512_set1_epi32(0x00FF00FF), m4 = _mm512_set1_epi32(0x000F000F);
     for (int c = 0; c < NCNT; c++) {
-        __m512i v = _mm512_load_si512(&cnt[c][16 * g]);
+        __m512i v = _mm512_load_si512(&cnt[c][GW * g]);
         int parts = c < 2 ? 2 : 4, width = c < 2 ? 8 : 4;
         for (int j = 0; j < parts; j++, a++) {
             __m512i f = _mm512_and_si512(_mm512_srlv_epi32(v, _mm512_set1_epi32(j * width)), c < 2 ? m8 : m4);
             if (twice) f = _mm512_slli_epi32(f, 1);
-            __m512i s = _mm512_load_si512(&acc[a][16 * g]);
-            _mm512_store_si512(&acc[a][16 * g], _mm512_mask_add_epi32(s, done, s, f));
+            __m512i s = _mm512_load_si512(&acc[a][GW * g]);
+            _mm512_store_si512(&acc[a][GW * g], _mm512_mask_add_epi32(s, (__mmask16)done, s, f));
         }
     }
+#else
+    const __m256i m8 = _mm256_set1_epi32(0x00FF00FF), m4 = _mm256_set1_epi32(0x000F000F);
+    const __m256i bits = _mm256_setr_epi32(1, 2, 4, 8, 16, 32, 64, 128);
+    const __m256i sel = _mm256_cmpeq_epi32(_mm256_and_si256(_mm256_set1_epi32((int)done), bits), bits);
+    for (int c = 0; c < NCNT; c++) {
+        __m256i v = _mm256_load_si256((const __m256i *)&cnt[c][GW * g]);
+        int parts = c < 2 ? 2 : 4, width = c < 2 ? 8 : 4;
+        for (int j = 0; j < parts; j++, a++) {
+            __m256i f = _mm256_and_si256(_mm256_srlv_epi32(v, _mm256_set1_epi32(j * width)), c < 2 ? m8 : m4);
+            if (twice) f = _mm256_slli_epi32(f, 1);
+            __m256i *dst = (__m256i *)&acc[a][GW * g];
+            _mm256_store_si256(dst, _mm256_add_epi32(_mm256_load_si256(dst), _mm256_and_si256(f, sel)));
+        }
+    }
+#endif
 }
 
-/* symbol of field f (16-bit half h) of accumulator a */
-static void avx_flush(uint32_t acc[NACC][LANES], int64_t *h) {
+/* one Euclid step of the GW lanes of group g; returns the lanes whose remainder is now 0 */
+static inline uint32_t simd_step(float *xs, float *ys, uint32_t cnt[NCNT][LANES], int g, float capf) {
+#if defined(__AVX512F__)
+    const __m512 zero = _mm512_setzero_ps(), one = _mm512_set1_ps(1.f), vcap = _mm512_set1_ps(capf);
+    const __m512i ione = _mm512_set1_epi32(1);
+    __m512 x = _mm512_load_ps(xs + GW * g), y = _mm512_load_ps(ys + GW * g);
+    __m512 a = _mm512_roundscale_ps(_mm512_div_ps(x, y), _MM_FROUND_TO_NEG_INF | _MM_FROUND_NO_EXC);
+    __m512 r = _mm512_fnmadd_ps(a, y, x);
+    __mmask16 neg = _mm512_cmp_ps_mask(r, zero, _CMP_LT_OQ);
+    a = _mm512_mask_sub_ps(a, neg, a, one);
+    r = _mm512_mask_add_ps(r, neg, r, y);
+    __m512i s = _mm512_sub_epi32(_mm512_cvttps_epi32(_mm512_min_ps(a, vcap)), ione);
+    _mm512_store_ps(xs + GW * g, y);
+    _mm512_store_ps(ys + GW * g, r);
+    /* variable shifts by >= 32 (negative differences included) give 0: each symbol lands in one counter */
+    static const int base[NCNT] = {0, 4, 8, 16, 24}, sh[NCNT] = {3, 3, 2, 2, 2};
+    for (int c = 0; c < NCNT; c++) {
+        __m512i v = _mm512_load_si512(&cnt[c][GW * g]);
+        v = _mm512_add_epi32(v, _mm512_sllv_epi32(ione, _mm512_slli_epi32(
+                _mm512_sub_epi32(s, _mm512_set1_epi32(base[c])), sh[c])));
+        _mm512_store_si512(&cnt[c][GW * g], v);
+    }
+    return (uint32_t)_mm512_cmp_ps_mask(r, zero, _CMP_EQ_OQ);
+#else
+    const __m256 zero = _mm256_setzero_ps(), one = _mm256_set1_ps(1.f), vcap = _mm256_set1_ps(capf);
+    const __m256i ione = _mm256_set1_epi32(1);
+    __m256 x = _mm256_load_ps(xs + GW * g), y = _mm256_load_ps(ys + GW * g);
+    __m256 a = _mm256_floor_ps(_mm256_div_ps(x, y));
+    __m256 r = _mm256_fnmadd_ps(a, y, x);
+    __m256 neg = _mm256_cmp_ps(r, zero, _CMP_LT_OQ);
+    a = _mm256_sub_ps(a, _mm256_and_ps(neg, one));
+    r = _mm256_add_ps(r, _mm256_and_ps(neg, y));
+    __m256i s = _mm256_sub_epi32(_mm256_cvttps_epi32(_mm256_min_ps(a, vcap)), ione);
+    _mm256_store_ps(xs + GW * g, y);
+    _mm256_store_ps(ys + GW * g, r);
+    static const int base[NCNT] = {0, 4, 8, 16, 24}, sh[NCNT] = {3, 3, 2, 2, 2};
+    for (int c = 0; c < NCNT; c++) {
+        __m256i *p = (__m256i *)&cnt[c][GW * g];
+        __m256i v = _mm256_load_si256(p);
+        v = _mm256_add_epi32(v, _mm256_sllv_epi32(ione, _mm256_slli_epi32(
+                _mm256_sub_epi32(s, _mm256_set1_epi32(base[c])), sh[c])));
+        _mm256_store_si256(p, v);
+    }
+    return (uint32_t)_mm256_movemask_ps(_mm256_cmp_ps(r, zero, _CMP_EQ_OQ));
+#endif
+}
+
+static void simd_flush(uint32_t acc[NACC][LANES], int64_t *h) {
     int a = 0;
     for (int c = 0; c < NCNT; c++) {
         int parts = c < 2 ? 2 : 4, base = c == 0 ? 0 : c == 1 ? 4 : 8 + 8 * (c - 2);
         for (int j = 0; j < parts; j++, a++) {
-            int s_lo = c < 2 ? base + j : base + j, s_hi = c < 2 ? base + j + 2 : base + j + 4;
+            int s_lo = base + j, s_hi = c < 2 ? base + j + 2 : base + j + 4;
             for (int l = 0; l < LANES; l++) {
                 h[s_lo] += acc[a][l] & 0xFFFF;
                 h[s_hi] += acc[a][l] >> 16;
@@ -154,11 +229,8 @@ static void avx_flush(uint32_t acc[NACC][LANES], int64_t *h) {
     }
 }
 
-
-typedef struct { int64_t q; int64_t p; } half_t;
-
-void cf_avx512(int64_t q_lo, int64_t q_hi, int64_t cap, int n_threads, int mirror,
-               int64_t *hist, int64_t *lengths, int64_t *per_den) {
+void cf_simd(int64_t q_lo, int64_t q_hi, int64_t cap, int n_threads, int mirror,
+             int64_t *hist, int64_t *lengths, int64_t *per_den) {
     memset(per_den, 0, sizeof(int64_t) * 6 * (q_hi - q_lo + 1));
     #pragma omp parallel num_threads(n_threads)
     {
@@ -168,7 +240,7 @@ void cf_avx512(int64_t q_lo, int64_t q_hi, int64_t cap, int n_threads, int mirro
         uint32_t cnt[NCNT][LANES] __attribute__((aligned(64)));
         uint32_t acc[NACC][LANES] __attribute__((aligned(64)));
         int32_t start[LANES], sym1[LANES]; int64_t lq[LANES];
-        __mmask16 active[GROUPS] = {0};
+        uint32_t active[GROUPS] = {0};
         memset(cnt, 0, sizeof cnt); memset(acc, 0, sizeof acc);
         int64_t q = q_lo + tid, p = 0;  /* generator state */
         int n_active = 0;
@@ -197,46 +269,20 @@ void cf_avx512(int64_t q_lo, int64_t q_hi, int64_t cap, int n_threads, int mirro
                 sym1[l] = (int)(a1 <= cap ? a1 - 1 : cap); start[l] = t; got = 1; } \
             got; })
         for (int l = 0; l < LANES; l++) {
-            if (NEXT_FRACTION()) { lq[l] = q; active[l / 16] |= (__mmask16)(1u << (l % 16)); n_active++; }
+            if (NEXT_FRACTION()) { lq[l] = q; active[l / GW] |= 1u << (l % GW); n_active++; }
             else { xs[l] = 2.f; ys[l] = 1.f; }
         }
-        const __m512 zero = _mm512_setzero_ps(), one = _mm512_set1_ps(1.f), vcap = _mm512_set1_ps(capf);
-        const __m512i ione = _mm512_set1_epi32(1);
         int since_flush = 0;
         while (n_active > 0) {
             t++;
             for (int g = 0; g < GROUPS; g++) {
-                __m512 x = _mm512_load_ps(xs + 16 * g), y = _mm512_load_ps(ys + 16 * g);
-                __m512 a = _mm512_roundscale_ps(_mm512_div_ps(x, y), _MM_FROUND_TO_NEG_INF | _MM_FROUND_NO_EXC);
-                __m512 r = _mm512_fnmadd_ps(a, y, x);
-                __mmask16 neg = _mm512_cmp_ps_mask(r, zero, _CMP_LT_OQ);
-                a = _mm512_mask_sub_ps(a, neg, a, one);
-                r = _mm512_mask_add_ps(r, neg, r, y);
-                __m512i s = _mm512_sub_epi32(_mm512_cvttps_epi32(_mm512_min_ps(a, vcap)), ione);
-                _mm512_store_ps(xs + 16 * g, y);
-                _mm512_store_ps(ys + 16 * g, r);
-                __m512i c0 = _mm512_load_si512(&cnt[0][16 * g]);
-                __m512i c1 = _mm512_load_si512(&cnt[1][16 * g]);
-                __m512i c2 = _mm512_load_si512(&cnt[2][16 * g]);
-                __m512i c3 = _mm512_load_si512(&cnt[3][16 * g]);
-                __m512i c4 = _mm512_load_si512(&cnt[4][16 * g]);
-                c0 = _mm512_add_epi32(c0, _mm512_sllv_epi32(ione, _mm512_slli_epi32(s, 3)));
-                c1 = _mm512_add_epi32(c1, _mm512_sllv_epi32(ione, _mm512_slli_epi32(_mm512_sub_epi32(s, _mm512_set1_epi32(4)), 3)));
-                c2 = _mm512_add_epi32(c2, _mm512_sllv_epi32(ione, _mm512_slli_epi32(_mm512_sub_epi32(s, _mm512_set1_epi32(8)), 2)));
-                c3 = _mm512_add_epi32(c3, _mm512_sllv_epi32(ione, _mm512_slli_epi32(_mm512_sub_epi32(s, _mm512_set1_epi32(16)), 2)));
-                c4 = _mm512_add_epi32(c4, _mm512_sllv_epi32(ione, _mm512_slli_epi32(_mm512_sub_epi32(s, _mm512_set1_epi32(24)), 2)));
-                _mm512_store_si512(&cnt[0][16 * g], c0);
-                _mm512_store_si512(&cnt[1][16 * g], c1);
-                _mm512_store_si512(&cnt[2][16 * g], c2);
-                _mm512_store_si512(&cnt[3][16 * g], c3);
-                _mm512_store_si512(&cnt[4][16 * g], c4);
-                __mmask16 ended = _mm512_cmp_ps_mask(r, zero, _CMP_EQ_OQ);
+                uint32_t ended = simd_step(xs, ys, cnt, g, capf);
                 if (!ended) continue;
-                __mmask16 done = ended & active[g];
-                if (done) avx_book_counts(cnt, acc, g, done, mirror);
-                for (unsigned m = ended; m; m &= m - 1) {
-                    int l = 16 * g + __builtin_ctz(m);
-                    if (active[g] & (1u << (l % 16))) {
+                uint32_t done = ended & active[g];
+                if (done) simd_book_counts(cnt, acc, g, done, mirror);
+                for (uint32_t m = ended; m; m &= m - 1) {
+                    int l = GW * g + __builtin_ctz(m);
+                    if (active[g] & (1u << (l % GW))) {
                         int n = t - start[l] + 1;
                         int64_t *row = per_den + (lq[l] - q_lo) * 6;
                         uint32_t v = cnt[0][l];
@@ -253,7 +299,7 @@ void cf_avx512(int64_t q_lo, int64_t q_hi, int64_t cap, int n_threads, int mirro
                             for (int d = 0; d < 4; d++) row[2 + d] += (v >> (8 * d)) & 255;
                         }
                         if (NEXT_FRACTION()) lq[l] = q;
-                        else { active[g] &= (__mmask16)~(1u << (l % 16)); n_active--; xs[l] = 2.f; ys[l] = 1.f;
+                        else { active[g] &= ~(1u << (l % GW)); n_active--; xs[l] = 2.f; ys[l] = 1.f;
                                for (int c = 0; c < NCNT; c++) cnt[c][l] = 0; }
                     } else {
                         xs[l] = 2.f; ys[l] = 1.f;
@@ -261,9 +307,9 @@ void cf_avx512(int64_t q_lo, int64_t q_hi, int64_t cap, int n_threads, int mirro
                     }
                 }
             }
-            if (++since_flush == FLUSH_STEPS) { avx_flush(acc, h); since_flush = 0; }
+            if (++since_flush == FLUSH_STEPS) { simd_flush(acc, h); since_flush = 0; }
         }
-        avx_flush(acc, h);
+        simd_flush(acc, h);
         #pragma omp critical
         { merge(hist, h, cap); merge(lengths, lh, MAXLEN); }
         #undef NEXT_FRACTION
@@ -271,3 +317,6 @@ void cf_avx512(int64_t q_lo, int64_t q_hi, int64_t cap, int n_threads, int mirro
     for (int64_t q = q_lo; q <= q_hi; q++)
         for (int d = 0; d < 4; d++) if (d >= cap - 1) per_den[(q - q_lo) * 6 + 2 + d] = -1;
 }
+#else
+const char *cf_simd_isa(void) { return "none"; }
+#endif

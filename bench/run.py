@@ -32,6 +32,11 @@ sys.path.insert(0, str(HERE))
 from cfsweep.kernels import sweep  # noqa: E402
 from cfsweep.kernels._jit import PARALLEL, SERIAL  # noqa: E402
 
+# Not cached: this file runs as __main__ and is imported by the tests, and Numba's cache would hand
+# one of them the other's module references. Its compile time is reported separately anyway.
+BENCH_SERIAL = {**SERIAL, "cache": False}
+BENCH_PARALLEL = {**PARALLEL, "cache": False}
+
 CAP = 32
 EMPTY = np.zeros(0, np.uint8)
 
@@ -69,7 +74,7 @@ def numpy_sweep(q_lo, q_hi, cap):
     return hist, lengths
 
 
-@numba.njit(**SERIAL)
+@numba.njit(**BENCH_SERIAL)
 def _plain_chunk(q_first, q_hi, step, cap, hist, lengths):
     for q in range(q_first, q_hi + 1, step):
         for p in range(1, q):
@@ -86,7 +91,7 @@ def _plain_chunk(q_first, q_hi, step, cap, hist, lengths):
             lengths[n] += 1
 
 
-@numba.njit(**PARALLEL)
+@numba.njit(**BENCH_PARALLEL)
 def numba_plain_sweep(q_lo, q_hi, cap, n_chunks):
     hs = np.zeros((n_chunks, cap), np.int64)
     ls = np.zeros((n_chunks, 129), np.int64)

@@ -40,7 +40,8 @@ How it is fast (see the design note on kernel speed).
   x - a*y is right; after stepping a down, a*y <= x is exact and so is r = x - a*y.
 * Digit counts of the rational in each lane live in packed per-lane counters (8-bit fields for
   symbols 0..7, 4-bit fields for 8..39: a symbol s >= 8 is a digit >= 9, and 9**c <= q < 2**31 bounds
-  its count c by 9); the lane also counts the symbols of a1 and a1 - 1 for the mirror's c**2 sums.
+  its count c by 9); the counts of the symbols of a1 and a1 - 1 that the mirror's c**2 sums need are
+  read back from these fields when the pair is booked (tracking them per step cost 14% of a sweep).
   Finished lanes (a uint64 bit mask, one bit per lane) are copied to a buffer that is booked BUFFER
   at a time: the sums of symbols 0..7 are int32 reductions over the buffer, symbol by symbol, which
   LLVM vectorises (exact: below 2**31 per flush); the rare 4-bit fields are visited one by one.
@@ -254,7 +255,17 @@ def _packed_words_to_sums(wtab, first_row, word_sums):
 
 
 @serial
-def _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_c1, b_c2, b_own, b_mirror, cap,
+def _packed_count(small, mid, high, sym):
+    """Count of symbol ``sym`` (0 <= sym < PACKED_SYMBOLS) held in a lane's packed counters."""
+    u = np.uint64(sym)
+    in_small = (small >> ((u * _U8) & _U63)) & _U255
+    in_mid = (mid >> (((u - _U8) * _U4) & _U63)) & _U15
+    in_high = (high >> (((u - _U24) * _U4) & _U63)) & _U15
+    return np.int64(in_small if sym < 8 else (in_mid if sym < 24 else in_high))
+
+
+@serial
+def _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_own, b_mirror, cap,
                     sym_total, sym_weighted, sym_squares, length_hist, per_den):
     """Book ``nb`` buffered finished pairs (p/q and its mirror) into the digit sums.
 
@@ -305,6 +316,8 @@ def _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_c1, b_c2, 
         # the rare rest
         v_mid = b_mid[i]
         v_high = b_high[i]
+        v_mid0 = v_mid
+        v_high0 = v_high
         for _ in range(2):
             in_mid = v_mid != _U0
             v = v_mid if in_mid else v_high
@@ -333,14 +346,14 @@ def _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_c1, b_c2, 
             sym_squares[sym] += c * c * w
         # The mirror's counts differ at three symbols: +1 at 0, -1 at sym1, +1 at sym2 (sym1 >= 1
         # since a1 >= 2; sym2 may equal 0 or sym1). Applied one at a time with weight ``mirror``,
-        # so coinciding symbols need no case; counts: c0 from the packed byte, c1 and c2 the counts
-        # of sym1 and sym2 in p/q tracked by the lane.
+        # so coinciding symbols need no case; c0, c1 and c2, the counts of 0, sym1 and sym2 in p/q,
+        # come from its packed counters.
         sym1 = b_sym1[i]
         pooled = sym1 == cap
         sym1 -= pooled
         sym2 = cap - 1 if pooled else sym1 - 1
         c0 = np.int64(v0 & _U255)
-        c1 = b_c1[i]
+        c1 = _packed_count(v0, v_mid0, v_high0, sym1)
         m = n + 1
         sym_total[0] += mirror
         sym_weighted[0] += mirror * m
@@ -348,7 +361,7 @@ def _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_c1, b_c2, 
         sym_total[sym1] -= mirror
         sym_weighted[sym1] -= mirror * m
         sym_squares[sym1] += mirror * (1 - 2 * c1)
-        now = b_c2[i] + (sym2 == 0) - (sym2 == sym1)
+        now = _packed_count(v0, v_mid0, v_high0, sym2) + (sym2 == 0) - (sym2 == sym1)
         sym_total[sym2] += mirror
         sym_weighted[sym2] += mirror * m
         sym_squares[sym2] += mirror * (2 * now + 1)
@@ -380,11 +393,6 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
     t_first = np.zeros(LANES, np.int64)
     lane_row = np.zeros(LANES, np.int64)
     lane_sym1 = np.zeros(LANES, np.int64)
-    # float digits min(a, cap) of the symbols sym1 and sym2 (see _flush_finished), and their counts
-    lane_d1 = np.zeros(LANES, float_proto.dtype)
-    lane_d2 = np.zeros(LANES, float_proto.dtype)
-    count1 = np.zeros(LANES, float_proto.dtype)
-    count2 = np.zeros(LANES, float_proto.dtype)
     lane_own = np.zeros(LANES, np.int64)
     lane_mirror = np.zeros(LANES, np.int64)
     active = np.zeros(LANES, np.uint8)
@@ -405,8 +413,6 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
     b_n = np.zeros(BUFFER, np.int64)
     b_row = np.zeros(BUFFER, np.int64)
     b_sym1 = np.zeros(BUFFER, np.int64)
-    b_c1 = np.zeros(BUFFER, np.int64)
-    b_c2 = np.zeros(BUFFER, np.int64)
     b_own = np.zeros(BUFFER, np.int64)
     b_mirror = np.zeros(BUFFER, np.int64)
     nb = 0
@@ -445,7 +451,7 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
             if active[lane]:
                 if (not coprime_only) or xf[lane] == float_one:
                     if nb == BUFFER:
-                        _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_c1, b_c2,
+                        _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1,
                                         b_own, b_mirror, cap, sym_total, sym_weighted, sym_squares,
                                         length_hist, per_den)
                         nb = 0
@@ -456,8 +462,6 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                     b_n[nb] = n
                     b_row[nb] = lane_row[lane]
                     b_sym1[nb] = lane_sym1[lane]
-                    b_c1[nb] = np.int64(count1[lane])
-                    b_c2[nb] = np.int64(count2[lane])
                     b_own[nb] = lane_own[lane]
                     b_mirror[nb] = lane_mirror[lane]
                     nb += 1
@@ -594,7 +598,7 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                     # p divides q: the expansion is [a1]; gcd(p, q) = p
                     if (not coprime_only) or p == 1:
                         if nb == BUFFER:
-                            _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_c1, b_c2,
+                            _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1,
                                             b_own, b_mirror, cap, sym_total, sym_weighted, sym_squares,
                                             length_hist, per_den)
                             nb = 0
@@ -604,8 +608,6 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                         b_n[nb] = 1
                         b_row[nb] = q - q_base
                         b_sym1[nb] = sym1
-                        b_c1[nb] = 1
-                        b_c2[nb] = np.int64(sym1 == cap)
                         b_own[nb] = own
                         b_mirror[nb] = mirror
                         nb += 1
@@ -627,10 +629,6 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                 high[lane] = first_high
                 lane_row[lane] = q - q_base
                 lane_sym1[lane] = sym1
-                lane_d1[lane] = s_counted + 1
-                lane_d2[lane] = cap if sym1 == cap else sym1
-                count1[lane] = 1
-                count2[lane] = sym1 == cap
                 lane_own[lane] = own
                 lane_mirror[lane] = mirror
                 t_first[lane] = t
@@ -652,8 +650,6 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
             a = a - float_one * (xv - a * yv < float_zero)
             digit = min(a, cap_f)
             quot[lane] = digit
-            count1[lane] += float_one * (digit == lane_d1[lane])
-            count2[lane] += float_one * (digit == lane_d2[lane])
             xf[lane] = yv
             yf[lane] = xv - a * yv
         if words:
@@ -674,7 +670,7 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
         for lane in range(LANES):
             ended |= np.uint64(yf[lane] == float_zero) << np.uint64(lane)
 
-    _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_c1, b_c2, b_own, b_mirror, cap,
+    _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_own, b_mirror, cap,
                     sym_total, sym_weighted, sym_squares, length_hist, per_den)
     # the middle fraction (q/2)/q = [0; 2] of even q is its own mirror; gcd = q/2
     for q in range(q_first, q_hi + 1, q_step):

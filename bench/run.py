@@ -177,7 +177,8 @@ def cpu_info():
 
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--quick", action="store_true", help="small workload, finishes in under a minute")
+    ap.add_argument("--quick", action="store_true", help="small workload (q <= 4000): about 30 s once the kernels are compiled; a first run "
+                         "also compiles them (about a minute, reported as compile_seconds)")
     ap.add_argument("--q-max", type=int, default=None, help="largest denominator of the workload")
     ap.add_argument("--repeats", type=int, default=None, help="timed runs per implementation (median)")
     args = ap.parse_args(argv)

@@ -27,14 +27,16 @@ def measure(q_max, words):
         out = Path(tmp) / "run"
         cmd = [sys.executable, "-m", "cfsweep", "sweep", "--max-den", str(q_max), "--words", str(words),
                "--out", str(out)]
-        t = time.perf_counter()
-        child = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
-        _, status, usage = os.wait4(child.pid, 0)
-        seconds = time.perf_counter() - t
-        err = child.stderr.read().decode()
-        child.stderr.close()
+        # stderr goes to a file: a pipe nobody reads while we wait could fill up and stall the child
+        with open(Path(tmp) / "stderr.txt", "w+b") as err:
+            t = time.perf_counter()
+            child = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=err)
+            _, status, usage = os.wait4(child.pid, 0)
+            seconds = time.perf_counter() - t
+            err.seek(0)
+            message = err.read().decode(errors="replace").strip()
         if os.waitstatus_to_exitcode(status) != 0:
-            raise SystemExit(f"sweep of Q = {q_max} failed: {err.strip()}")
+            raise SystemExit(f"sweep of Q = {q_max} failed: {message}")
         blocks = len(list((out / "blocks").glob("*.done.json")))
         # the family "all" holds every p/q with 0 < p < q <= Q: Q(Q - 1)/2 fractions
         members = sum(int(pq.read_table(f, columns=["members"])["members"].to_numpy().sum())

@@ -138,6 +138,15 @@ def c_runner(dll, name, *extra):
     return run
 
 
+def c_runners(dll, simd):
+    """Name -> runner of every C reference in the library (the SIMD pair only if it was compiled in)."""
+    runners = {"c_plain": c_runner(dll, "cf_plain"), "c_lockstep": c_runner(dll, "cf_lockstep")}
+    if simd != "none":
+        runners[f"c_{simd}"] = c_runner(dll, "cf_simd", 0)
+        runners[f"c_{simd}_mirror"] = c_runner(dll, "cf_simd", 1)
+    return runners
+
+
 def kernel_runner(max_k):
     def run(q_lo, q_hi, cap, threads):
         if threads == 1:
@@ -177,7 +186,8 @@ def cpu_info():
 
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--quick", action="store_true", help="small workload (q <= 4000): about 30 s once the kernels are compiled; a first run "
+    ap.add_argument("--quick", action="store_true",
+                    help="small workload (q <= 4000): about 30 s once the kernels are compiled; a first run "
                          "also compiles them (about a minute, reported as compile_seconds)")
     ap.add_argument("--q-max", type=int, default=None, help="largest denominator of the workload")
     ap.add_argument("--repeats", type=int, default=None, help="timed runs per implementation (median)")
@@ -199,12 +209,8 @@ def main(argv=None):
         "cfsweep_k1": kernel_runner(1),
         "cfsweep_k2": kernel_runner(2),
         "cfsweep_k3": kernel_runner(3),
-        "c_plain": c_runner(dll, "cf_plain"),
-        "c_lockstep": c_runner(dll, "cf_lockstep"),
+        **c_runners(dll, c_simd),
     }
-    if c_simd != "none":
-        impls[f"c_{c_simd}"] = c_runner(dll, "cf_simd", 0)
-        impls[f"c_{c_simd}_mirror"] = c_runner(dll, "cf_simd", 1)
     for name, fn in impls.items():
         t = time.perf_counter()
         for th in threads_list:

@@ -76,17 +76,13 @@ def test_kernel_runner(bench, expected, max_k):
     for threads in (1, 2):
         hist, lengths, rows = bench.kernel_runner(max_k)(Q_LO, Q_HI, CAP, threads)
         assert np.array_equal(hist, expected[0])
-        assert np.array_equal(lengths[:129], expected[1][:lengths.shape[0]])
+        assert np.array_equal(lengths, expected[1])
         assert np.array_equal(rows, expected[2])
 
 
 def test_c_references(bench, expected, c_library):
     dll, _, _, simd = c_library
-    runners = {"c_plain": bench.c_runner(dll, "cf_plain"), "c_lockstep": bench.c_runner(dll, "cf_lockstep")}
-    if simd != "none":
-        runners[f"c_{simd}"] = bench.c_runner(dll, "cf_simd", 0)
-        runners[f"c_{simd}_mirror"] = bench.c_runner(dll, "cf_simd", 1)
-    for name, run in runners.items():
+    for name, run in bench.c_runners(dll, simd).items():
         for threads in (1, 2):
             hist, lengths, rows = run(Q_LO, Q_HI, CAP, threads)
             assert np.array_equal(hist, expected[0]), name

@@ -167,6 +167,9 @@ static inline void simd_book_counts(uint32_t cnt[NCNT][LANES], uint32_t acc[NACC
 #endif
 }
 
+/* counter c holds symbols COUNTER_BASE[c].. in fields of 2^COUNTER_SHIFT[c] bits: bytes, then nibbles */
+static const int COUNTER_BASE[NCNT] = {0, 4, 8, 16, 24}, COUNTER_SHIFT[NCNT] = {3, 3, 2, 2, 2};
+
 /* one Euclid step of the GW lanes of group g; returns the lanes whose remainder is now 0 */
 static inline uint32_t simd_step(float *xs, float *ys, uint32_t cnt[NCNT][LANES], int g, float capf) {
 #if defined(__AVX512F__)
@@ -182,11 +185,10 @@ static inline uint32_t simd_step(float *xs, float *ys, uint32_t cnt[NCNT][LANES]
     _mm512_store_ps(xs + GW * g, y);
     _mm512_store_ps(ys + GW * g, r);
     /* variable shifts by >= 32 (negative differences included) give 0: each symbol lands in one counter */
-    static const int base[NCNT] = {0, 4, 8, 16, 24}, sh[NCNT] = {3, 3, 2, 2, 2};
     for (int c = 0; c < NCNT; c++) {
         __m512i v = _mm512_load_si512(&cnt[c][GW * g]);
         v = _mm512_add_epi32(v, _mm512_sllv_epi32(ione, _mm512_slli_epi32(
-                _mm512_sub_epi32(s, _mm512_set1_epi32(base[c])), sh[c])));
+                _mm512_sub_epi32(s, _mm512_set1_epi32(COUNTER_BASE[c])), COUNTER_SHIFT[c])));
         _mm512_store_si512(&cnt[c][GW * g], v);
     }
     return (uint32_t)_mm512_cmp_ps_mask(r, zero, _CMP_EQ_OQ);
@@ -202,12 +204,11 @@ static inline uint32_t simd_step(float *xs, float *ys, uint32_t cnt[NCNT][LANES]
     __m256i s = _mm256_sub_epi32(_mm256_cvttps_epi32(_mm256_min_ps(a, vcap)), ione);
     _mm256_store_ps(xs + GW * g, y);
     _mm256_store_ps(ys + GW * g, r);
-    static const int base[NCNT] = {0, 4, 8, 16, 24}, sh[NCNT] = {3, 3, 2, 2, 2};
     for (int c = 0; c < NCNT; c++) {
         __m256i *p = (__m256i *)&cnt[c][GW * g];
         __m256i v = _mm256_load_si256(p);
         v = _mm256_add_epi32(v, _mm256_sllv_epi32(ione, _mm256_slli_epi32(
-                _mm256_sub_epi32(s, _mm256_set1_epi32(base[c])), sh[c])));
+                _mm256_sub_epi32(s, _mm256_set1_epi32(COUNTER_BASE[c])), COUNTER_SHIFT[c])));
         _mm256_store_si256(p, v);
     }
     return (uint32_t)_mm256_movemask_ps(_mm256_cmp_ps(r, zero, _CMP_EQ_OQ));

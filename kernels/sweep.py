@@ -42,9 +42,14 @@ How it is fast (see the design note on kernel speed).
   symbols 0..7, 4-bit fields for 8..39: a symbol s >= 8 is a digit >= 9, and 9**c <= q < 2**31 bounds
   its count c by 9); the counts of the symbols of a1 and a1 - 1 that the mirror's c**2 sums need are
   read back from these fields when the pair is booked, which keeps the per-step loop shorter.
-  Finished lanes (a uint64 bit mask, one bit per lane) are copied to a buffer that is booked BUFFER
-  at a time: the sums of symbols 0..7 are int32 reductions over the buffer, symbol by symbol, which
-  LLVM vectorises (exact: below 2**31 per flush); the rare 4-bit fields are visited one by one.
+  Finished lanes (a uint64 bit mask, one bit per lane) are copied to a buffer (counters and one
+  packed tag: weights, sym1, n, row) that is booked BUFFER at a time. The mirror's counters are p/q's
+  plus a delta that depends on sym1 only (a table built per chunk). The sums of symbols 0..7 of both
+  are int32 reductions over the buffer, symbol by symbol, which LLVM vectorises (exact: below 2**31
+  per flush); the rare 4-bit fields are visited one by one, with their three sums packed in one
+  int64 per symbol and flush; per-denominator sums stay in registers while the row stays the same.
+  Each of these keeps consecutive pairs from waiting on each other's stores and keeps the count of
+  scalar instructions per pair low, which is what bounds this kernel (see bench/).
 * Words of length >= 2 are read from a per-lane ring of symbols when the lane finishes (no ring when
   max_k = 1); the per-word scratch ``stamp << 8 | count`` gives per-rational counts without clearing,
   and one packed column holds sum c and the prior-count sum (see PACKED_WORD_PERIOD_MASK).
@@ -265,60 +270,130 @@ def _packed_count(small, mid, high, sym):
 
 
 @serial
-def _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_own, b_mirror, cap,
-                    sym_total, sym_weighted, sym_squares, length_hist, per_den):
+def _spread_low_bytes(v):
+    """Bytes 0..3 of ``v`` as the four 16-bit fields of a uint64."""
+    x = v & np.uint64(0xFFFFFFFF)
+    x = (x | (x << np.uint64(16))) & np.uint64(0x0000FFFF0000FFFF)
+    return (x | (x << _U8)) & np.uint64(0x00FF00FF00FF00FF)
+
+
+@serial
+def _mirror_deltas(cap):
+    """Per first symbol sym1 (0..cap): what the mirror adds to the packed counters of p/q.
+
+    Row 0: the byte counters (symbols 0..7), rows 1 and 2: the 4-bit counters (8..23, 24..39), as
+    wrapping uint64 deltas: +1 at symbol 0, -1 at sym1, +1 at sym2 = sym1 - 1; nothing at sym1 and
+    sym2 when sym1 = cap (a1 > cap: the mirror's a1 - 1 is pooled with a1). Adding a delta to p/q's
+    counters gives the mirror's counters exactly, because p/q counts sym1 at least once.
+    """
+    deltas = np.zeros((3, PACKED_SYMBOLS + 1), np.uint64)
+    for sym1 in range(1, cap + 1):
+        deltas[0, sym1] = _U1
+        if sym1 < cap:
+            for sym, sign in ((sym1, -1), (sym1 - 1, 1)):
+                if sym < 8:
+                    row = 0
+                    unit = _U1 << (np.uint64(sym) * _U8)
+                elif sym < 24:
+                    row = 1
+                    unit = _U1 << (np.uint64(sym - 8) * _U4)
+                else:
+                    row = 2
+                    unit = _U1 << (np.uint64(sym - 24) * _U4)
+                deltas[row, sym1] = deltas[row, sym1] + unit if sign > 0 else deltas[row, sym1] - unit
+    return deltas
+
+
+# The 2-visit rare-field loop sends the visits of empty counters to these unused table slots, rotating,
+# so that they do not form a chain of read-modify-writes on one slot.
+DUMMY_SLOTS = 8
+# Copies of the length table, rotating per pair, for the same reason.
+LENGTH_COPIES = 4
+# A rare symbol's three per-flush sums share one int64: sum w*c in bits 0..20, sum c*(w*n + mirror)
+# in bits 21..41 and sum w*c**2 (with the mirror's) in bits 42..63. Per flush and symbol >= 8 (a digit
+# >= 9, so c <= 9; the mirror's c <= 10) they are at most BUFFER * 2 * 9, BUFFER * 9 * 93 and
+# BUFFER * (81 + 100), below 2**21, 2**21 and 2**22; partial sums may borrow, the totals decode exactly.
+RARE_WEIGHTED_SHIFT = 21
+RARE_SQUARES_SHIFT = 42
+# Buffer rows (int64): packed counters small, mid, high of p/q, and its tag (see _lane_chunk).
+BUF_SMALL, BUF_MID, BUF_HIGH, BUF_TAG = 0, 1, 2, 3
+# Fields of a tag: own weight (bit 0), mirror weight (bit 1), sym1 (bits 2..7), n (bits 8..15),
+# per-denominator row (bits 16..).
+TAG_N_SHIFT = 8
+TAG_ROW_SHIFT = 16
+
+
+@serial
+def _flush_finished(nb, buf, cap, deltas, work, work32, sym_sums, rare, length_tab, per_den):
     """Book ``nb`` buffered finished pairs (p/q and its mirror) into the digit sums.
 
-    Per pair: packed counts of p/q, its length n, its per-denominator row, the symbol index of its
-    first digit a1 (``cap`` when a1 > cap, which tells the mirror's second symbol), and the weights
-    0/1 of p/q and of the mirror (length n + 1, counts +1 at symbol 0, -1 at sym1, +1 at the symbol
-    of a1 - 1). The common symbols 0..7 are summed by loops over the buffer that LLVM vectorises.
+    ``buf[:, i]``: packed counters of p/q and its tag (weights 0/1 of p/q and of the mirror, the
+    symbol index sym1 of its first digit a1 (``cap`` when a1 > cap), its length n, its
+    per-denominator row). The mirror has length n + 1 and counters p/q's plus ``deltas[:, sym1]``.
+    Symbols 0..7 of both are summed by loops over the buffer that LLVM vectorises; the scalar loop
+    does the rest with few memory updates per pair (per-denominator sums in registers while the row
+    stays the same, one packed update per rare symbol).
     """
-    # int32 holds these per-flush sums exactly (at most BUFFER * 46 * 93 < 2**31), and integer
-    # reductions may be reordered, so LLVM vectorises the loops over the buffer (float sums may not be
-    # reordered without fastmath); symbol-outer order makes each sum a plain reduction
-    weight = np.empty(BUFFER, np.int32)
-    weighted_n = np.empty(BUFFER, np.int32)
+    small_m = work[0]
+    den_counts = work[1]
+    den_digits = work[2]
+    # masks -1/0 of the weights 1/0, and the weighted lengths, as int32 for 32-bit vector lanes
+    w_own = work32[0]
+    w_mirror = work32[1]
+    n_own = work32[2]
+    n_mirror = work32[3]
+    # elementwise, vectorised: weights, lengths, the mirror's byte counters, per-denominator parts
     for i in range(nb):
-        w = np.int32(b_own[i] + b_mirror[i])
-        weight[i] = w
-        weighted_n[i] = w * np.int32(b_n[i]) + np.int32(b_mirror[i])
-    for sym in range(8):
-        shift = np.uint64(sym) * _U8
-        acc_total = np.int32(0)
-        acc_weighted = np.int32(0)
-        acc_squares = np.int32(0)
-        for i in range(nb):
-            c = np.int32((b_small[i] >> shift) & _U255)
-            cw = c * weight[i]
-            acc_total += cw
-            acc_weighted += c * weighted_n[i]
-            acc_squares += c * cw
-        sym_total[sym] += np.int64(acc_total)
-        sym_weighted[sym] += np.int64(acc_weighted)
-        sym_squares[sym] += np.int64(acc_squares)
+        tag = buf[BUF_TAG, i]
+        own = tag & 1
+        mirror = (tag >> 1) & 1
+        sym1 = (tag >> 2) & 63
+        n = (tag >> TAG_N_SHIFT) & 255
+        v0 = np.uint64(buf[BUF_SMALL, i])
+        vm = v0 + deltas[0, sym1]
+        small_m[i] = np.int64(vm)
+        w_own[i] = np.int32(-own)
+        w_mirror[i] = np.int32(-mirror)
+        n_own[i] = np.int32(own * n)
+        n_mirror[i] = np.int32(mirror * (n + 1))
+        # members in the low 32 bits, partial quotients in the high: at most 2 * BUFFER * 47 per flush
+        den_counts[i] = (own + mirror) + ((own * n + mirror * (n + 1)) << 32)
+        # digits 1..4 in 16-bit fields: at most 2 * BUFFER * 47 < 2**16 per flush
+        den_digits[i] = np.int64((_spread_low_bytes(v0) & (_U0 - np.uint64(own))) +
+                                 (_spread_low_bytes(vm) & (_U0 - np.uint64(mirror))))
+    row_now = buf[BUF_TAG, 0] >> TAG_ROW_SHIFT if nb > 0 else 0
+    row_counts = np.int64(0)
+    row_digits = np.int64(0)
     for i in range(nb):
-        own = b_own[i]
-        mirror = b_mirror[i]
+        tag = buf[BUF_TAG, i]
+        row = tag >> TAG_ROW_SHIFT
+        if row != row_now:
+            per_den[row_now, 0] += row_counts & 0xFFFFFFFF
+            per_den[row_now, 1] += row_counts >> 32
+            for d in range(ROW_DIGITS):
+                per_den[row_now, 2 + d] += (row_digits >> (16 * d)) & 0xFFFF
+            row_counts = 0
+            row_digits = 0
+            row_now = row
+        row_counts += den_counts[i]
+        row_digits += den_digits[i]
+        own = tag & 1
+        mirror = (tag >> 1) & 1
+        n = (tag >> TAG_N_SHIFT) & 255
+        copy = (i & (LENGTH_COPIES - 1)) * RING
+        length_tab[copy + n] += own
+        length_tab[copy + n + 1] += mirror
+        # rare symbols (>= 8) of p/q with both weights; the mirror's differences follow below.
+        # Visit only the nonzero 4-bit fields of both rare-symbol words: usually none or one, so two
+        # visits are made branch-free (an empty word gives c = 0: with the top bit forced on,
+        # trailing_zeros finds field 15 of a zero word), and a loop takes the rare rest
         w = own + mirror
-        n = b_n[i]
-        v0 = b_small[i]
-        length_hist[n] += own
-        length_hist[n + 1] += mirror
-        row = b_row[i]
-        per_den[row, 0] += w
-        per_den[row, 1] += w * n + mirror
-        for d in range(ROW_DIGITS):
-            per_den[row, 2 + d] += w * np.int64((v0 >> (np.uint64(d) * _U8)) & _U255)
-        # visit only the nonzero 4-bit fields of both rare-symbol words: usually none or one, so two
-        # visits are made branch-free (an empty word gives c = 0 at a valid symbol: with the top bit
-        # forced on, trailing_zeros finds field 15 of a zero word and its count 0), and a loop takes
-        # the rare rest
-        v_mid = b_mid[i]
-        v_high = b_high[i]
+        unit = w + ((w * n + mirror) << RARE_WEIGHTED_SHIFT)
+        v_mid = np.uint64(buf[BUF_MID, i])
+        v_high = np.uint64(buf[BUF_HIGH, i])
         v_mid0 = v_mid
         v_high0 = v_high
-        for _ in range(2):
+        for visit in range(2):
             in_mid = v_mid != _U0
             v = v_mid if in_mid else v_high
             field = trailing_zeros(v | _TOP_BIT) >> _U2
@@ -328,9 +403,8 @@ def _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_own, b_mir
             v_mid = cleared if in_mid else v_mid
             v_high = v_high if in_mid else cleared
             sym = np.int64(field) + (8 if in_mid else 24)
-            sym_total[sym] += c * w
-            sym_weighted[sym] += c * (w * n + mirror)
-            sym_squares[sym] += c * c * w
+            sym = sym if c != 0 else PACKED_SYMBOLS + ((2 * i + visit) & (DUMMY_SLOTS - 1))
+            rare[sym] += c * unit + ((c * c * w) << RARE_SQUARES_SHIFT)
         while (v_mid | v_high) != _U0:
             in_mid = v_mid != _U0
             v = v_mid if in_mid else v_high
@@ -341,33 +415,50 @@ def _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_own, b_mir
             v_mid = cleared if in_mid else v_mid
             v_high = v_high if in_mid else cleared
             sym = np.int64(field) + (8 if in_mid else 24)
-            sym_total[sym] += c * w
-            sym_weighted[sym] += c * (w * n + mirror)
-            sym_squares[sym] += c * c * w
-        # The mirror's counts differ at three symbols: +1 at 0, -1 at sym1, +1 at sym2 (sym1 >= 1
-        # since a1 >= 2; sym2 may equal 0 or sym1). Applied one at a time with weight ``mirror``,
-        # so coinciding symbols need no case; c0, c1 and c2, the counts of 0, sym1 and sym2 in p/q,
-        # come from its packed counters.
-        sym1 = b_sym1[i]
-        pooled = sym1 == cap
-        sym1 -= pooled
-        sym2 = cap - 1 if pooled else sym1 - 1
-        c0 = np.int64(v0 & _U255)
-        c1 = _packed_count(v0, v_mid0, v_high0, sym1)
-        m = n + 1
-        sym_total[0] += mirror
-        sym_weighted[0] += mirror * m
-        sym_squares[0] += mirror * (2 * c0 + 1)
-        sym_total[sym1] -= mirror
-        sym_weighted[sym1] -= mirror * m
-        sym_squares[sym1] += mirror * (1 - 2 * c1)
-        now = _packed_count(v0, v_mid0, v_high0, sym2) + (sym2 == 0) - (sym2 == sym1)
-        sym_total[sym2] += mirror
-        sym_weighted[sym2] += mirror * m
-        sym_squares[sym2] += mirror * (2 * now + 1)
-        per_den[row, 2] += mirror
-        per_den[row, 2 + (sym1 & 3)] -= mirror * (sym1 < ROW_DIGITS)
-        per_den[row, 2 + (sym2 & 3)] += mirror * (sym2 < ROW_DIGITS)
+            rare[sym] += c * unit + ((c * c * w) << RARE_SQUARES_SHIFT)
+        sym1 = (tag >> 2) & 63
+        if sym1 >= 8 and sym1 < cap and mirror != 0:
+            # the mirror has one sym1 less and one sym2 = sym1 - 1 more (p/q counts sym1 at least once)
+            m = n + 1
+            c1 = _packed_count(np.uint64(0), v_mid0, v_high0, sym1)
+            rare[sym1] += -1 - (m << RARE_WEIGHTED_SHIFT) + ((1 - 2 * c1) << RARE_SQUARES_SHIFT)
+            sym2 = sym1 - 1
+            if sym2 >= 8:
+                c2 = _packed_count(np.uint64(0), v_mid0, v_high0, sym2)
+                rare[sym2] += 1 + (m << RARE_WEIGHTED_SHIFT) + ((2 * c2 + 1) << RARE_SQUARES_SHIFT)
+    if nb > 0:
+        per_den[row_now, 0] += row_counts & 0xFFFFFFFF
+        per_den[row_now, 1] += row_counts >> 32
+        for d in range(ROW_DIGITS):
+            per_den[row_now, 2 + d] += (row_digits >> (16 * d)) & 0xFFFF
+    for sym in range(8, PACKED_SYMBOLS):
+        packed = np.uint64(rare[sym])
+        sym_sums[0, sym] += np.int64(packed & np.uint64((1 << RARE_WEIGHTED_SHIFT) - 1))
+        sym_sums[1, sym] += np.int64((packed >> np.uint64(RARE_WEIGHTED_SHIFT)) &
+                                     np.uint64((1 << (RARE_SQUARES_SHIFT - RARE_WEIGHTED_SHIFT)) - 1))
+        sym_sums[2, sym] += np.int64(packed >> np.uint64(RARE_SQUARES_SHIFT))
+        rare[sym] = 0
+    # int32 holds these per-flush sums exactly (at most 2 * BUFFER * 47 * 47 < 2**31), and integer
+    # reductions may be reordered, so LLVM vectorises the loops over the buffer; symbol-outer order
+    # makes each sum a plain reduction
+    for sym in range(8):
+        shift = np.uint64(sym) * _U8
+        acc_total = np.int32(0)
+        acc_weighted = np.int32(0)
+        acc_squares = np.int32(0)
+        for i in range(nb):
+            # every product is cast back to int32: Numba types int32 * int32 as int64, and the casts
+            # let LLVM keep 32-bit vector lanes
+            c = np.int32((np.uint64(buf[BUF_SMALL, i]) >> shift) & _U255)
+            cm = np.int32((np.uint64(small_m[i]) >> shift) & _U255)
+            c_own = np.int32(c & w_own[i])
+            c_mirror = np.int32(cm & w_mirror[i])
+            acc_total = np.int32(acc_total + np.int32(c_own + c_mirror))
+            acc_weighted = np.int32(acc_weighted + np.int32(np.int32(c * n_own[i]) + np.int32(cm * n_mirror[i])))
+            acc_squares = np.int32(acc_squares + np.int32(np.int32(c * c_own) + np.int32(cm * c_mirror)))
+        sym_sums[0, sym] += np.int64(acc_total)
+        sym_sums[1, sym] += np.int64(acc_weighted)
+        sym_sums[2, sym] += np.int64(acc_squares)
 
 
 BUFFER = 512
@@ -391,10 +482,8 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
     mid = np.zeros(LANES, np.uint64)
     high = np.zeros(LANES, np.uint64)
     t_first = np.zeros(LANES, np.int64)
-    lane_row = np.zeros(LANES, np.int64)
-    lane_sym1 = np.zeros(LANES, np.int64)
-    lane_own = np.zeros(LANES, np.int64)
-    lane_mirror = np.zeros(LANES, np.int64)
+    # own | mirror << 1 | sym1 << 2 | row << TAG_ROW_SHIFT of the pair in each lane
+    lane_tag = np.zeros(LANES, np.int64)
     active = np.zeros(LANES, np.uint8)
     words = max_k >= 2
     ring = np.zeros((RING if words else 1, LANES), np.uint8)
@@ -407,18 +496,14 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
     float_one = consts[1]
     cap_f = consts[2]
 
-    b_small = np.zeros(BUFFER, np.uint64)
-    b_mid = np.zeros(BUFFER, np.uint64)
-    b_high = np.zeros(BUFFER, np.uint64)
-    b_n = np.zeros(BUFFER, np.int64)
-    b_row = np.zeros(BUFFER, np.int64)
-    b_sym1 = np.zeros(BUFFER, np.int64)
-    b_own = np.zeros(BUFFER, np.int64)
-    b_mirror = np.zeros(BUFFER, np.int64)
+    buf = np.zeros((4, BUFFER), np.int64)
+    work = np.zeros((3, BUFFER), np.int64)
+    work32 = np.zeros((4, BUFFER), np.int32)
+    rare = np.zeros(PACKED_SYMBOLS + DUMMY_SLOTS, np.int64)
     nb = 0
-    sym_total = np.zeros(PACKED_SYMBOLS, np.int64)
-    sym_weighted = np.zeros(PACKED_SYMBOLS, np.int64)
-    sym_squares = np.zeros(PACKED_SYMBOLS, np.int64)
+    sym_sums = np.zeros((3, PACKED_SYMBOLS), np.int64)
+    deltas = _mirror_deltas(cap)
+    length_tab = np.zeros(LENGTH_COPIES * RING, np.int64)
 
     n_words = word_sums.shape[0]
     wtab = np.zeros((n_words if words else 1, 4), np.int64)
@@ -451,27 +536,22 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
             if active[lane]:
                 if (not coprime_only) or xf[lane] == float_one:
                     if nb == BUFFER:
-                        _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1,
-                                        b_own, b_mirror, cap, sym_total, sym_weighted, sym_squares,
-                                        length_hist, per_den)
+                        _flush_finished(nb, buf, cap, deltas, work, work32, sym_sums, rare, length_tab, per_den)
                         nb = 0
                     n = t - t_first[lane] + 1
-                    b_small[nb] = small[lane]
-                    b_mid[nb] = mid[lane]
-                    b_high[nb] = high[lane]
-                    b_n[nb] = n
-                    b_row[nb] = lane_row[lane]
-                    b_sym1[nb] = lane_sym1[lane]
-                    b_own[nb] = lane_own[lane]
-                    b_mirror[nb] = lane_mirror[lane]
+                    tag = lane_tag[lane]
+                    buf[BUF_SMALL, nb] = np.int64(small[lane])
+                    buf[BUF_MID, nb] = np.int64(mid[lane])
+                    buf[BUF_HIGH, nb] = np.int64(high[lane])
+                    buf[BUF_TAG, nb] = tag | (n << TAG_N_SHIFT)
                     nb += 1
                     if words:
                         stamp += 1
                         if (stamp & PACKED_WORD_PERIOD_MASK) == 0:
                             _packed_words_to_sums(wtab, row2, word_sums)
-                        own = lane_own[lane]
-                        mirror = lane_mirror[lane]
-                        sym1 = lane_sym1[lane]
+                        own = tag & 1
+                        mirror = (tag >> 1) & 1
+                        sym1 = (tag >> 2) & 63
                         sym_mirror2 = cap - 1 if sym1 == cap else sym1 - 1
                         tf = t_first[lane]
                         if max_k <= 3:
@@ -598,18 +678,14 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                     # p divides q: the expansion is [a1]; gcd(p, q) = p
                     if (not coprime_only) or p == 1:
                         if nb == BUFFER:
-                            _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1,
-                                            b_own, b_mirror, cap, sym_total, sym_weighted, sym_squares,
-                                            length_hist, per_den)
+                            _flush_finished(nb, buf, cap, deltas, work, work32, sym_sums, rare, length_tab,
+                                            per_den)
                             nb = 0
-                        b_small[nb] = first
-                        b_mid[nb] = first_mid
-                        b_high[nb] = first_high
-                        b_n[nb] = 1
-                        b_row[nb] = q - q_base
-                        b_sym1[nb] = sym1
-                        b_own[nb] = own
-                        b_mirror[nb] = mirror
+                        buf[BUF_SMALL, nb] = np.int64(first)
+                        buf[BUF_MID, nb] = np.int64(first_mid)
+                        buf[BUF_HIGH, nb] = np.int64(first_high)
+                        buf[BUF_TAG, nb] = (own | (mirror << 1) | (sym1 << 2) | (1 << TAG_N_SHIFT) |
+                                            ((q - q_base) << TAG_ROW_SHIFT))
                         nb += 1
                         if words and mirror != 0:
                             # the mirror [1, a1 - 1] has the single word of length 2 (0, s)
@@ -627,10 +703,7 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                 small[lane] = first
                 mid[lane] = first_mid
                 high[lane] = first_high
-                lane_row[lane] = q - q_base
-                lane_sym1[lane] = sym1
-                lane_own[lane] = own
-                lane_mirror[lane] = mirror
+                lane_tag[lane] = own | (mirror << 1) | (sym1 << 2) | ((q - q_base) << TAG_ROW_SHIFT)
                 t_first[lane] = t
                 if words:
                     ring[t & RING_MASK, lane] = np.uint8(s_counted)
@@ -670,24 +743,26 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
         for lane in range(LANES):
             ended |= np.uint64(yf[lane] == float_zero) << np.uint64(lane)
 
-    _flush_finished(nb, b_small, b_mid, b_high, b_n, b_row, b_sym1, b_own, b_mirror, cap,
-                    sym_total, sym_weighted, sym_squares, length_hist, per_den)
+    _flush_finished(nb, buf, cap, deltas, work, work32, sym_sums, rare, length_tab, per_den)
+    for copy in range(LENGTH_COPIES):
+        for n in range(RING):
+            length_hist[n] += length_tab[copy * RING + n]
     # the middle fraction (q/2)/q = [0; 2] of even q is its own mirror; gcd = q/2
     for q in range(q_first, q_hi + 1, q_step):
         if q % 2 == 0 and ((not has_den) or den_ok[q] != 0) and ((not has_num) or num_ok[q // 2] != 0) \
                 and ((not coprime_only) or q == 2):
             length_hist[1] += 1
-            sym_total[1] += 1
-            sym_weighted[1] += 1
-            sym_squares[1] += 1
+            sym_sums[0, 1] += 1
+            sym_sums[1, 1] += 1
+            sym_sums[2, 1] += 1
             row = q - q_base
             per_den[row, 0] += 1
             per_den[row, 1] += 1
             per_den[row, 3] += 1
     for sym in range(cap):
-        word_sums[sym, 0] += sym_total[sym]
-        word_sums[sym, 1] += sym_squares[sym]
-        word_sums[sym, 2] += sym_weighted[sym]
+        word_sums[sym, 0] += sym_sums[0, sym]
+        word_sums[sym, 1] += sym_sums[2, sym]
+        word_sums[sym, 2] += sym_sums[1, sym]
     if words:
         _packed_words_to_sums(wtab, offsets[2], word_sums)
 

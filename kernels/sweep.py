@@ -30,8 +30,9 @@ How it is fast (see the design note on kernel speed).
   digit counts differ at three symbols (+1 at digit 1, -1 at a1, +1 at a1 - 1), its length is n + 1
   and its words differ only at its first two positions. The middle fraction (q/2)/q = [0; 2] of even q
   is its own mirror and is booked on its own.
-* The first quotient a1 = floor(q/p) is taken in scalar float64 when a lane is refilled (exact for
-  q < 2**52), so lanes run from the second partial quotient on; p | q is booked at once.
+* The first quotient a1 = floor(q/p) is taken in float64 (exact for q < 2**52 after one correction)
+  for a batch of GEN_BATCH fractions at a time, in a loop LLVM vectorises, and lanes are refilled
+  from the batch, so lanes run from the second partial quotient on; p | q is booked at once.
 * LANES independent fractions advance in lockstep: a branch-free loop over lanes computes the
   quotient by a float division (float32 while q < 2**24, float64 beyond) and corrects it with one exact
   step, so every quotient is exact. Why one step suffices: x, y < 2**24 (2**53) are exact floats; the
@@ -462,6 +463,9 @@ def _flush_finished(nb, buf, cap, deltas, work, work32, sym_sums, rare, length_t
 
 
 BUFFER = 512
+# Fractions generated per batch of first quotients (rows of ``gen`` in _lane_chunk).
+GEN_BATCH = 256
+GEN_P, GEN_Q, GEN_R, GEN_TAG, GEN_SMALL, GEN_MID, GEN_HIGH = 0, 1, 2, 3, 4, 5, 6
 
 
 @serial
@@ -501,6 +505,9 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
     work32 = np.zeros((4, BUFFER), np.int32)
     rare = np.zeros(PACKED_SYMBOLS + DUMMY_SLOTS, np.int64)
     nb = 0
+    gen = np.zeros((7, GEN_BATCH), np.int64)
+    g_len = 0
+    g_next = 0
     sym_sums = np.zeros((3, PACKED_SYMBOLS), np.int64)
     deltas = _mirror_deltas(cap)
     length_tab = np.zeros(LENGTH_COPIES * RING, np.int64)
@@ -635,60 +642,74 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                                                stamp, own, mirror, sym_mirror2)
                 active[lane] = 0
                 n_active -= 1
-            xf[lane] = 2
-            yf[lane] = 1
-            small[lane] = _U0
-            mid[lane] = _U0
-            high[lane] = _U0
-            while more:
-                # next p with 2p < q where p/q (flags bit 0) or its mirror (bit 1) is a member; the
-                # middle fraction p = q/2 is booked after the loop
-                gen_p += 1
-                if 2 * gen_p >= gen_q or (has_den and den_ok[gen_q] == 0):
-                    gen_q += q_step
-                    gen_p = 0
-                    more = gen_q <= q_hi
+            got = False
+            while True:
+                if g_next == g_len:
+                    if not more:
+                        break
+                    # next batch of p with 2p < q where p/q (flags bit 0) or its mirror (bit 1) is a
+                    # member; the middle fraction p = q/2 is booked after the loop
+                    g_len = 0
+                    while more and g_len < GEN_BATCH:
+                        gen_p += 1
+                        if 2 * gen_p >= gen_q or (has_den and den_ok[gen_q] == 0):
+                            gen_q += q_step
+                            gen_p = 0
+                            more = gen_q <= q_hi
+                            continue
+                        if has_num:
+                            flags = np.int64(num_ok[gen_p] != 0) | (np.int64(num_ok[gen_q - gen_p] != 0) << 1)
+                            if flags == 0:
+                                continue
+                        else:
+                            flags = np.int64(3)
+                        gen[GEN_P, g_len] = gen_p
+                        gen[GEN_Q, g_len] = gen_q
+                        gen[GEN_TAG, g_len] = flags
+                        g_len += 1
+                    # first quotients of the batch, branch-free so that LLVM vectorises it; floor(q/p)
+                    # in float64 is exact for q < 2**52 after one correction either way
+                    for i in range(g_len):
+                        p = gen[GEN_P, i]
+                        q = gen[GEN_Q, i]
+                        a1 = np.int64(np.float64(q) / np.float64(p))
+                        r = q - a1 * p
+                        low = np.int64(r < 0)
+                        a1 -= low
+                        r += low * p
+                        high_r = np.int64(r >= p)
+                        a1 += high_r
+                        r -= high_r * p
+                        sym1 = min(a1, cap + 1) - 1
+                        s_counted = min(sym1, cap - 1)
+                        su = np.uint64(s_counted)
+                        gen[GEN_R, i] = r
+                        gen[GEN_TAG, i] |= (sym1 << 2) | ((q - q_base) << TAG_ROW_SHIFT)
+                        gen[GEN_SMALL, i] = np.int64(np.uint64(su < _U8) << ((su * _U8) & _U63))
+                        gen[GEN_MID, i] = np.int64(np.uint64((su >= _U8) & (su < _U24)) << (((su - _U8) * _U4) & _U63))
+                        gen[GEN_HIGH, i] = np.int64(np.uint64(su >= _U24) << (((su - _U24) * _U4) & _U63))
+                    g_next = 0
                     continue
-                if has_num:
-                    flags = np.int64(num_ok[gen_p] != 0) | (np.int64(num_ok[gen_q - gen_p] != 0) << 1)
-                    if flags == 0:
-                        continue
-                else:
-                    flags = np.int64(3)
-                q = gen_q
-                p = gen_p
-                # first quotient in scalar float64: floor(q/p) is exact for q < 2**52
-                a1 = np.int64(np.float64(q) / np.float64(p))
-                r = q - a1 * p
-                if r < 0:
-                    a1 -= 1
-                    r += p
-                elif r >= p:
-                    a1 += 1
-                    r -= p
-                sym1 = (a1 if a1 <= cap else cap + 1) - 1
-                s_counted = sym1 if sym1 < cap else cap - 1
-                first = _U1 << (np.uint64(s_counted) * _U8) if s_counted < 8 else _U0
-                first_mid = (_U1 << (np.uint64(s_counted - 8) * _U4)
-                             if (s_counted >= 8) & (s_counted < 24) else _U0)
-                first_high = _U1 << (np.uint64(s_counted - 24) * _U4) if s_counted >= 24 else _U0
-                own = flags & 1
-                mirror = flags >> 1
-                if r == 0:
+                i = g_next
+                g_next += 1
+                p = gen[GEN_P, i]
+                tag = gen[GEN_TAG, i]
+                if gen[GEN_R, i] == 0:
                     # p divides q: the expansion is [a1]; gcd(p, q) = p
                     if (not coprime_only) or p == 1:
                         if nb == BUFFER:
                             _flush_finished(nb, buf, cap, deltas, work, work32, sym_sums, rare, length_tab,
                                             per_den)
                             nb = 0
-                        buf[BUF_SMALL, nb] = np.int64(first)
-                        buf[BUF_MID, nb] = np.int64(first_mid)
-                        buf[BUF_HIGH, nb] = np.int64(first_high)
-                        buf[BUF_TAG, nb] = (own | (mirror << 1) | (sym1 << 2) | (1 << TAG_N_SHIFT) |
-                                            ((q - q_base) << TAG_ROW_SHIFT))
+                        buf[BUF_SMALL, nb] = gen[GEN_SMALL, i]
+                        buf[BUF_MID, nb] = gen[GEN_MID, i]
+                        buf[BUF_HIGH, nb] = gen[GEN_HIGH, i]
+                        buf[BUF_TAG, nb] = tag | (1 << TAG_N_SHIFT)
                         nb += 1
+                        mirror = (tag >> 1) & 1
                         if words and mirror != 0:
                             # the mirror [1, a1 - 1] has the single word of length 2 (0, s)
+                            sym1 = (tag >> 2) & 63
                             s2 = cap - 1 if sym1 == cap else sym1 - 1
                             idx = offsets[2] + s2
                             wtab[idx, 0] += 1
@@ -699,17 +720,25 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                             wtab[idx, 2] += 1
                     continue
                 xf[lane] = p
-                yf[lane] = r
-                small[lane] = first
-                mid[lane] = first_mid
-                high[lane] = first_high
-                lane_tag[lane] = own | (mirror << 1) | (sym1 << 2) | ((q - q_base) << TAG_ROW_SHIFT)
+                yf[lane] = gen[GEN_R, i]
+                small[lane] = np.uint64(gen[GEN_SMALL, i])
+                mid[lane] = np.uint64(gen[GEN_MID, i])
+                high[lane] = np.uint64(gen[GEN_HIGH, i])
+                lane_tag[lane] = tag
                 t_first[lane] = t
                 if words:
-                    ring[t & RING_MASK, lane] = np.uint8(s_counted)
+                    sym1 = (tag >> 2) & 63
+                    ring[t & RING_MASK, lane] = np.uint8(min(sym1, cap - 1))
                 active[lane] = 1
                 n_active += 1
+                got = True
                 break
+            if not got:
+                xf[lane] = 2
+                yf[lane] = 1
+                small[lane] = _U0
+                mid[lane] = _U0
+                high[lane] = _U0
         if n_active == 0:
             break
         t += 1

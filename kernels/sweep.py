@@ -279,29 +279,22 @@ def _spread_low_bytes(v):
 
 
 @serial
-def _mirror_deltas(cap):
-    """Per first symbol sym1 (0..cap): what the mirror adds to the packed counters of p/q.
+def _mirror_row_deltas(cap):
+    """Per first symbol sym1 (0..cap): what the mirror adds to p/q's per-denominator digits 1..4.
 
-    Row 0: the byte counters (symbols 0..7), rows 1 and 2: the 4-bit counters (8..23, 24..39), as
-    wrapping uint64 deltas: +1 at symbol 0, -1 at sym1, +1 at sym2 = sym1 - 1; nothing at sym1 and
-    sym2 when sym1 = cap (a1 > cap: the mirror's a1 - 1 is pooled with a1). Adding a delta to p/q's
-    counters gives the mirror's counters exactly, because p/q counts sym1 at least once.
+    In the four 16-bit fields of a wrapping uint64 (digit d + 1 in field d): +1 at symbol 0, -1 at
+    sym1, +1 at sym2 = sym1 - 1, the last two only when sym1 < cap (a1 > cap: the mirror's a1 - 1 is
+    pooled with a1).
     """
-    deltas = np.zeros((3, PACKED_SYMBOLS + 1), np.uint64)
+    deltas = np.zeros(PACKED_SYMBOLS + 1, np.uint64)
     for sym1 in range(1, cap + 1):
-        deltas[0, sym1] = _U1
+        delta = _U1
         if sym1 < cap:
-            for sym, sign in ((sym1, -1), (sym1 - 1, 1)):
-                if sym < 8:
-                    row = 0
-                    unit = _U1 << (np.uint64(sym) * _U8)
-                elif sym < 24:
-                    row = 1
-                    unit = _U1 << (np.uint64(sym - 8) * _U4)
-                else:
-                    row = 2
-                    unit = _U1 << (np.uint64(sym - 24) * _U4)
-                deltas[row, sym1] = deltas[row, sym1] + unit if sign > 0 else deltas[row, sym1] - unit
+            if sym1 < ROW_DIGITS:
+                delta -= _U1 << (np.uint64(sym1) * np.uint64(16))
+            if sym1 - 1 < ROW_DIGITS:
+                delta += _U1 << (np.uint64(sym1 - 1) * np.uint64(16))
+        deltas[sym1] = delta
     return deltas
 
 
@@ -325,62 +318,92 @@ TAG_ROW_SHIFT = 16
 
 
 @serial
-def _flush_finished(nb, buf, cap, deltas, work, work32, sym_sums, rare, length_tab, per_den):
+def _flush_finished(nb, buf, cap, row_deltas, work32, sym_sums, rare, length_tab, per_den):
     """Book ``nb`` buffered finished pairs (p/q and its mirror) into the digit sums.
 
     ``buf[:, i]``: packed counters of p/q and its tag (weights 0/1 of p/q and of the mirror, the
     symbol index sym1 of its first digit a1 (``cap`` when a1 > cap), its length n, its
-    per-denominator row). The mirror has length n + 1 and counters p/q's plus ``deltas[:, sym1]``.
-    Symbols 0..7 of both are summed by loops over the buffer that LLVM vectorises; the scalar loop
-    does the rest with few memory updates per pair (per-denominator sums in registers while the row
-    stays the same, one packed update per rare symbol).
+    per-denominator row). The mirror has length n + 1 and p/q's counts, plus one at symbol 0, minus
+    one at sym1 and plus one at sym2 = sym1 - 1 (the last two only when sym1 < cap). Symbols 0..7 of
+    both are summed by loops over the buffer that LLVM vectorises; the scalar loop does the rest with
+    few memory updates per pair (per-denominator sums in registers while the row stays the same, one
+    packed update per rare symbol).
     """
-    small_m = work[0]
-    den_counts = work[1]
-    den_digits = work[2]
-    # masks -1/0 of the weights 1/0, and the weighted lengths, as int32 for 32-bit vector lanes
-    w_own = work32[0]
-    w_mirror = work32[1]
-    n_own = work32[2]
-    n_mirror = work32[3]
-    # elementwise, vectorised: weights, lengths, the mirror's byte counters, per-denominator parts
+    # int32 columns, so that the symbol loops run on 32-bit vector lanes: the byte counters of
+    # symbols 0..3 and 4..7, masks -1/0 of the weights 1/0, weighted lengths, and the symbols where
+    # the mirror has one less / one more (-1: none)
+    lo = work32[0]
+    hi = work32[1]
+    w_own = work32[2]
+    w_mirror = work32[3]
+    n_own = work32[4]
+    n_mirror = work32[5]
+    less = work32[6]
+    more = work32[7]
     for i in range(nb):
         tag = buf[BUF_TAG, i]
         own = tag & 1
         mirror = (tag >> 1) & 1
         sym1 = (tag >> 2) & 63
         n = (tag >> TAG_N_SHIFT) & 255
-        v0 = np.uint64(buf[BUF_SMALL, i])
-        vm = v0 + deltas[0, sym1]
-        small_m[i] = np.int64(vm)
+        v0 = buf[BUF_SMALL, i]
+        lo[i] = np.int32(v0 & 0xFFFFFFFF)
+        hi[i] = np.int32(v0 >> 32)
         w_own[i] = np.int32(-own)
         w_mirror[i] = np.int32(-mirror)
         n_own[i] = np.int32(own * n)
         n_mirror[i] = np.int32(mirror * (n + 1))
-        # members in the low 32 bits, partial quotients in the high: at most 2 * BUFFER * 47 per flush
-        den_counts[i] = (own + mirror) + ((own * n + mirror * (n + 1)) << 32)
-        # digits 1..4 in 16-bit fields: at most 2 * BUFFER * 47 < 2**16 per flush
-        den_digits[i] = np.int64((_spread_low_bytes(v0) & (_U0 - np.uint64(own))) +
-                                 (_spread_low_bytes(vm) & (_U0 - np.uint64(mirror))))
+        pooled = sym1 == cap
+        less[i] = np.int32(-1 if pooled else sym1)
+        more[i] = np.int32(-1 if pooled else sym1 - 1)
+    # int32 holds these per-flush sums exactly (at most 2 * BUFFER * 47 * 47 < 2**31), and integer
+    # reductions may be reordered, so LLVM vectorises the loops over the buffer; symbol-outer order
+    # makes each sum a plain reduction. Every product is cast back to int32: Numba types
+    # int32 * int32 as int64, and the casts let LLVM keep 32-bit lanes.
+    for sym in range(8):
+        shift = np.int32(8 * (sym & 3))
+        at_zero = np.int32(sym == 0)
+        s32 = np.int32(sym)
+        src = lo if sym < 4 else hi
+        acc_total = np.int32(0)
+        acc_weighted = np.int32(0)
+        acc_squares = np.int32(0)
+        for i in range(nb):
+            c = np.int32((src[i] >> shift) & np.int32(255))
+            cm = np.int32(c + at_zero - np.int32(less[i] == s32) + np.int32(more[i] == s32))
+            c_own = np.int32(c & w_own[i])
+            c_mirror = np.int32(cm & w_mirror[i])
+            acc_total = np.int32(acc_total + np.int32(c_own + c_mirror))
+            acc_weighted = np.int32(acc_weighted + np.int32(np.int32(c * n_own[i]) + np.int32(cm * n_mirror[i])))
+            acc_squares = np.int32(acc_squares + np.int32(np.int32(c * c_own) + np.int32(cm * c_mirror)))
+        sym_sums[0, sym] += np.int64(acc_total)
+        sym_sums[1, sym] += np.int64(acc_weighted)
+        sym_sums[2, sym] += np.int64(acc_squares)
     row_now = buf[BUF_TAG, 0] >> TAG_ROW_SHIFT if nb > 0 else 0
+    # members in the low 32 bits, partial quotients in the high: at most 2 * BUFFER * 47 per flush;
+    # digits 1..4 in 16-bit fields: at most 2 * BUFFER * 47 < 2**16 per flush (borrows of the
+    # mirror's -1 cancel in the total)
     row_counts = np.int64(0)
-    row_digits = np.int64(0)
+    row_digits = _U0
     for i in range(nb):
         tag = buf[BUF_TAG, i]
+        own = tag & 1
+        mirror = (tag >> 1) & 1
+        sym1 = (tag >> 2) & 63
+        n = (tag >> TAG_N_SHIFT) & 255
         row = tag >> TAG_ROW_SHIFT
         if row != row_now:
             per_den[row_now, 0] += row_counts & 0xFFFFFFFF
             per_den[row_now, 1] += row_counts >> 32
             for d in range(ROW_DIGITS):
-                per_den[row_now, 2 + d] += (row_digits >> (16 * d)) & 0xFFFF
+                per_den[row_now, 2 + d] += np.int64((row_digits >> np.uint64(16 * d)) & np.uint64(0xFFFF))
             row_counts = 0
-            row_digits = 0
+            row_digits = _U0
             row_now = row
-        row_counts += den_counts[i]
-        row_digits += den_digits[i]
-        own = tag & 1
-        mirror = (tag >> 1) & 1
-        n = (tag >> TAG_N_SHIFT) & 255
+        w = own + mirror
+        row_counts += w + ((w * n + mirror) << 32)
+        v0 = np.uint64(buf[BUF_SMALL, i])
+        row_digits += _spread_low_bytes(v0) * np.uint64(w) + (row_deltas[sym1] & (_U0 - np.uint64(mirror)))
         copy = (i & (LENGTH_COPIES - 1)) * RING
         length_tab[copy + n] += own
         length_tab[copy + n + 1] += mirror
@@ -388,7 +411,6 @@ def _flush_finished(nb, buf, cap, deltas, work, work32, sym_sums, rare, length_t
         # Visit only the nonzero 4-bit fields of both rare-symbol words: usually none or one, so two
         # visits are made branch-free (an empty word gives c = 0: with the top bit forced on,
         # trailing_zeros finds field 15 of a zero word), and a loop takes the rare rest
-        w = own + mirror
         unit = w + ((w * n + mirror) << RARE_WEIGHTED_SHIFT)
         v_mid = np.uint64(buf[BUF_MID, i])
         v_high = np.uint64(buf[BUF_HIGH, i])
@@ -417,21 +439,20 @@ def _flush_finished(nb, buf, cap, deltas, work, work32, sym_sums, rare, length_t
             v_high = v_high if in_mid else cleared
             sym = np.int64(field) + (8 if in_mid else 24)
             rare[sym] += c * unit + ((c * c * w) << RARE_SQUARES_SHIFT)
-        sym1 = (tag >> 2) & 63
         if sym1 >= 8 and sym1 < cap and mirror != 0:
             # the mirror has one sym1 less and one sym2 = sym1 - 1 more (p/q counts sym1 at least once)
             m = n + 1
-            c1 = _packed_count(np.uint64(0), v_mid0, v_high0, sym1)
+            c1 = _packed_count(_U0, v_mid0, v_high0, sym1)
             rare[sym1] += -1 - (m << RARE_WEIGHTED_SHIFT) + ((1 - 2 * c1) << RARE_SQUARES_SHIFT)
             sym2 = sym1 - 1
             if sym2 >= 8:
-                c2 = _packed_count(np.uint64(0), v_mid0, v_high0, sym2)
+                c2 = _packed_count(_U0, v_mid0, v_high0, sym2)
                 rare[sym2] += 1 + (m << RARE_WEIGHTED_SHIFT) + ((2 * c2 + 1) << RARE_SQUARES_SHIFT)
     if nb > 0:
         per_den[row_now, 0] += row_counts & 0xFFFFFFFF
         per_den[row_now, 1] += row_counts >> 32
         for d in range(ROW_DIGITS):
-            per_den[row_now, 2 + d] += (row_digits >> (16 * d)) & 0xFFFF
+            per_den[row_now, 2 + d] += np.int64((row_digits >> np.uint64(16 * d)) & np.uint64(0xFFFF))
     for sym in range(8, PACKED_SYMBOLS):
         packed = np.uint64(rare[sym])
         sym_sums[0, sym] += np.int64(packed & np.uint64((1 << RARE_WEIGHTED_SHIFT) - 1))
@@ -439,27 +460,6 @@ def _flush_finished(nb, buf, cap, deltas, work, work32, sym_sums, rare, length_t
                                      np.uint64((1 << (RARE_SQUARES_SHIFT - RARE_WEIGHTED_SHIFT)) - 1))
         sym_sums[2, sym] += np.int64(packed >> np.uint64(RARE_SQUARES_SHIFT))
         rare[sym] = 0
-    # int32 holds these per-flush sums exactly (at most 2 * BUFFER * 47 * 47 < 2**31), and integer
-    # reductions may be reordered, so LLVM vectorises the loops over the buffer; symbol-outer order
-    # makes each sum a plain reduction
-    for sym in range(8):
-        shift = np.uint64(sym) * _U8
-        acc_total = np.int32(0)
-        acc_weighted = np.int32(0)
-        acc_squares = np.int32(0)
-        for i in range(nb):
-            # every product is cast back to int32: Numba types int32 * int32 as int64, and the casts
-            # let LLVM keep 32-bit vector lanes
-            c = np.int32((np.uint64(buf[BUF_SMALL, i]) >> shift) & _U255)
-            cm = np.int32((np.uint64(small_m[i]) >> shift) & _U255)
-            c_own = np.int32(c & w_own[i])
-            c_mirror = np.int32(cm & w_mirror[i])
-            acc_total = np.int32(acc_total + np.int32(c_own + c_mirror))
-            acc_weighted = np.int32(acc_weighted + np.int32(np.int32(c * n_own[i]) + np.int32(cm * n_mirror[i])))
-            acc_squares = np.int32(acc_squares + np.int32(np.int32(c * c_own) + np.int32(cm * c_mirror)))
-        sym_sums[0, sym] += np.int64(acc_total)
-        sym_sums[1, sym] += np.int64(acc_weighted)
-        sym_sums[2, sym] += np.int64(acc_squares)
 
 
 BUFFER = 512
@@ -501,15 +501,14 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
     cap_f = consts[2]
 
     buf = np.zeros((4, BUFFER), np.int64)
-    work = np.zeros((3, BUFFER), np.int64)
-    work32 = np.zeros((4, BUFFER), np.int32)
+    work32 = np.zeros((8, BUFFER), np.int32)
     rare = np.zeros(PACKED_SYMBOLS + DUMMY_SLOTS, np.int64)
     nb = 0
     gen = np.zeros((7, GEN_BATCH), np.int64)
     g_len = 0
     g_next = 0
     sym_sums = np.zeros((3, PACKED_SYMBOLS), np.int64)
-    deltas = _mirror_deltas(cap)
+    row_deltas = _mirror_row_deltas(cap)
     length_tab = np.zeros(LENGTH_COPIES * RING, np.int64)
 
     n_words = word_sums.shape[0]
@@ -543,7 +542,7 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
             if active[lane]:
                 if (not coprime_only) or xf[lane] == float_one:
                     if nb == BUFFER:
-                        _flush_finished(nb, buf, cap, deltas, work, work32, sym_sums, rare, length_tab, per_den)
+                        _flush_finished(nb, buf, cap, row_deltas, work32, sym_sums, rare, length_tab, per_den)
                         nb = 0
                     n = t - t_first[lane] + 1
                     tag = lane_tag[lane]
@@ -698,7 +697,7 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                     # p divides q: the expansion is [a1]; gcd(p, q) = p
                     if (not coprime_only) or p == 1:
                         if nb == BUFFER:
-                            _flush_finished(nb, buf, cap, deltas, work, work32, sym_sums, rare, length_tab,
+                            _flush_finished(nb, buf, cap, row_deltas, work32, sym_sums, rare, length_tab,
                                             per_den)
                             nb = 0
                         buf[BUF_SMALL, nb] = gen[GEN_SMALL, i]
@@ -772,7 +771,7 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
         for lane in range(LANES):
             ended |= np.uint64(yf[lane] == float_zero) << np.uint64(lane)
 
-    _flush_finished(nb, buf, cap, deltas, work, work32, sym_sums, rare, length_tab, per_den)
+    _flush_finished(nb, buf, cap, row_deltas, work32, sym_sums, rare, length_tab, per_den)
     for copy in range(LENGTH_COPIES):
         for n in range(RING):
             length_hist[n] += length_tab[copy * RING + n]

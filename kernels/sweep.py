@@ -566,26 +566,41 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                             weight = own + mirror
                             add2 = own * (n - 1) + mirror * n
                             add3 = own * (n - 2) + mirror * (n - 1)
-                            prev1 = np.int64(ring[tf & RING_MASK, lane])
-                            prev2 = np.int64(0)
-                            for j in range(1, n):
-                                s = np.int64(ring[(tf + j) & RING_MASK, lane])
-                                code2 = prev1 * cap + s
-                                idx = row2 + code2
-                                v = wtab[idx, 3]
-                                before = (v & 255) if (v >> 8) == stamp else 0
-                                wtab[idx, 3] = (stamp << 8) | (before + 1)
-                                wtab[idx, 0] += weight * (1 + (before << 32))
-                                wtab[idx, 2] += add2
-                                if max_k == 3 and j >= 2:
-                                    idx = row3 + prev2 * cap + s
+                            prev1 = np.uint64(ring[tf & RING_MASK, lane])
+                            prev2 = _U0
+                            cap_u = np.uint64(cap)
+                            row2_u = np.uint64(row2)
+                            row3_u = np.uint64(row3)
+                            # unsigned indices: no negative-index wraparound test per update
+                            if max_k == 2:
+                                for j in range(1, n):
+                                    s = np.uint64(ring[(tf + j) & RING_MASK, lane])
+                                    idx = row2_u + prev1 * cap_u + s
                                     v = wtab[idx, 3]
                                     before = (v & 255) if (v >> 8) == stamp else 0
                                     wtab[idx, 3] = (stamp << 8) | (before + 1)
                                     wtab[idx, 0] += weight * (1 + (before << 32))
-                                    wtab[idx, 2] += add3
-                                prev2 = code2
-                                prev1 = s
+                                    wtab[idx, 2] += add2
+                                    prev1 = s
+                            else:
+                                for j in range(1, n):
+                                    s = np.uint64(ring[(tf + j) & RING_MASK, lane])
+                                    code2 = prev1 * cap_u + s
+                                    idx = row2_u + code2
+                                    v = wtab[idx, 3]
+                                    before = (v & 255) if (v >> 8) == stamp else 0
+                                    wtab[idx, 3] = (stamp << 8) | (before + 1)
+                                    wtab[idx, 0] += weight * (1 + (before << 32))
+                                    wtab[idx, 2] += add2
+                                    if j >= 2:
+                                        idx = row3_u + prev2 * cap_u + s
+                                        v = wtab[idx, 3]
+                                        before = (v & 255) if (v >> 8) == stamp else 0
+                                        wtab[idx, 3] = (stamp << 8) | (before + 1)
+                                        wtab[idx, 0] += weight * (1 + (before << 32))
+                                        wtab[idx, 2] += add3
+                                    prev2 = code2
+                                    prev1 = s
                             if mirror != 0:
                                 # the mirror's changes at its first two positions, as in
                                 # _record_words_pair: (word row, +1 or -1, m of the mirror)

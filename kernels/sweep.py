@@ -127,18 +127,24 @@ def _record_words(ring, mask, lane, t_first, n, k_min, max_k, cap, offsets, code
 
 
 @serial
+def _scratch_step(v, stamp, delta):
+    """One occurrence added (delta = +1), removed (-1) or neither (0) at a word row of rational ``stamp``.
+
+    ``v`` is the row's scratch ``stamp << 8 | count``; returns the new scratch and what column 0 (sum c
+    in the low 32 bits, prior counts in the high, see PACKED_WORD_PERIOD_MASK) gains: the prior count
+    of an added occurrence, minus that of a removed one.
+    """
+    count = (v & 255) if (v >> 8) == stamp else 0
+    now = count + delta
+    return (stamp << 8) | now, delta + ((delta * min(count, now)) << 32)
+
+
+@serial
 def _word_occurrence(wtab, idx, stamp, delta, m):
     """Add (delta = +1) or remove (delta = -1) one occurrence of word row ``idx`` in rational ``stamp``."""
-    v = wtab[idx, 3]
-    count = (v & 255) if (v >> 8) == stamp else 0
-    if delta > 0:
-        prior = count
-        count += 1
-    else:
-        count -= 1
-        prior = -count
-    wtab[idx, 3] = (stamp << 8) | count
-    wtab[idx, 0] += delta + (prior << 32)
+    scratch, add = _scratch_step(wtab[idx, 3], stamp, delta)
+    wtab[idx, 3] = scratch
+    wtab[idx, 0] += add
     wtab[idx, 2] += delta * m
 
 
@@ -512,7 +518,9 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
     length_tab = np.zeros(LENGTH_COPIES * RING, np.int64)
 
     n_words = word_sums.shape[0]
-    wtab = np.zeros((n_words if words else 1, 4), np.int64)
+    # one more row: the dummy row of updates with delta 0
+    wtab = np.zeros((n_words + 1 if words else 1, 4), np.int64)
+    dummy_row = n_words
     offsets = np.zeros(max_k + 2, np.int64)
     for k in range(1, max_k + 2):
         offsets[k] = word_offset(cap, k)
@@ -521,9 +529,6 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
 
     row2 = offsets[2] if max_k >= 2 else 0
     row3 = offsets[3] if max_k >= 3 else 0
-    d_row = np.zeros(8, np.int64)
-    d_sign = np.zeros(8, np.int64)
-    d_m = np.zeros(8, np.int64)
 
     has_num = num_ok.shape[0] > 0
     has_den = den_ok.shape[0] > 0
@@ -603,54 +608,46 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                                     prev1 = s
                             if mirror != 0:
                                 # the mirror's changes at its first two positions, as in
-                                # _record_words_pair: (word row, +1 or -1, m of the mirror)
+                                # _record_words_pair, straight-line (a lane's n is >= 2; an
+                                # update that n < 3 rules out goes to the dummy row with delta 0)
                                 s_1 = np.int64(ring[tf & RING_MASK, lane])
                                 s_2 = np.int64(ring[(tf + 1) & RING_MASK, lane])
                                 s_3 = np.int64(ring[(tf + 2) & RING_MASK, lane])
-                                nd = 0
-                                if n >= 2:
-                                    d_row[nd] = row2 + s_1 * cap + s_2
-                                    d_sign[nd] = -1
-                                    d_m[nd] = n
-                                    nd += 1
-                                d_row[nd] = row2 + sym_mirror2
-                                d_sign[nd] = 1
-                                d_m[nd] = n
-                                nd += 1
-                                if n >= 2:
-                                    d_row[nd] = row2 + sym_mirror2 * cap + s_2
-                                    d_sign[nd] = 1
-                                    d_m[nd] = n
-                                    nd += 1
-                                if max_k == 3 and n >= 2:
-                                    if n >= 3:
-                                        d_row[nd] = row3 + (s_1 * cap + s_2) * cap + s_3
-                                        d_sign[nd] = -1
-                                        d_m[nd] = n - 1
-                                        nd += 1
-                                    d_row[nd] = row3 + sym_mirror2 * cap + s_2
-                                    d_sign[nd] = 1
-                                    d_m[nd] = n - 1
-                                    nd += 1
-                                    if n >= 3:
-                                        d_row[nd] = row3 + (sym_mirror2 * cap + s_2) * cap + s_3
-                                        d_sign[nd] = 1
-                                        d_m[nd] = n - 1
-                                        nd += 1
-                                for d in range(nd):
-                                    idx = d_row[d]
-                                    delta = d_sign[d]
-                                    v = wtab[idx, 3]
-                                    count = (v & 255) if (v >> 8) == stamp else 0
-                                    if delta > 0:
-                                        prior = count
-                                        count += 1
-                                    else:
-                                        count -= 1
-                                        prior = -count
-                                    wtab[idx, 3] = (stamp << 8) | count
-                                    wtab[idx, 0] += delta + (prior << 32)
-                                    wtab[idx, 2] += delta * d_m[d]
+                                first2 = s_1 * cap + s_2
+                                mirror2 = sym_mirror2 * cap + s_2
+                                idx = row2 + first2
+                                scratch, add = _scratch_step(wtab[idx, 3], stamp, -1)
+                                wtab[idx, 3] = scratch
+                                wtab[idx, 0] += add
+                                wtab[idx, 2] -= n
+                                idx = row2 + sym_mirror2
+                                scratch, add = _scratch_step(wtab[idx, 3], stamp, 1)
+                                wtab[idx, 3] = scratch
+                                wtab[idx, 0] += add
+                                wtab[idx, 2] += n
+                                idx = row2 + mirror2
+                                scratch, add = _scratch_step(wtab[idx, 3], stamp, 1)
+                                wtab[idx, 3] = scratch
+                                wtab[idx, 0] += add
+                                wtab[idx, 2] += n
+                                if max_k == 3:
+                                    long3 = n >= 3
+                                    delta3 = np.int64(long3)
+                                    idx = row3 + first2 * cap + s_3 if long3 else dummy_row
+                                    scratch, add = _scratch_step(wtab[idx, 3], stamp, -delta3)
+                                    wtab[idx, 3] = scratch
+                                    wtab[idx, 0] += add
+                                    wtab[idx, 2] -= delta3 * (n - 1)
+                                    idx = row3 + mirror2
+                                    scratch, add = _scratch_step(wtab[idx, 3], stamp, 1)
+                                    wtab[idx, 3] = scratch
+                                    wtab[idx, 0] += add
+                                    wtab[idx, 2] += n - 1
+                                    idx = row3 + mirror2 * cap + s_3 if long3 else dummy_row
+                                    scratch, add = _scratch_step(wtab[idx, 3], stamp, delta3)
+                                    wtab[idx, 3] = scratch
+                                    wtab[idx, 0] += add
+                                    wtab[idx, 2] += delta3 * (n - 1)
                         else:
                             _record_words_pair(ring, lane, tf, n, max_k, cap, offsets, codes, wtab,
                                                stamp, own, mirror, sym_mirror2)

@@ -4,7 +4,9 @@
  *   cf_plain:    one Euclid chain at a time, uint32 division.
  *   cf_lockstep: LANES fractions in lockstep, float32 quotient (exact for q < 2^24 after one
  *                correction), packed per-lane counters for symbols 0..7, scalar pass for the rest.
- * Threads: denominators dealt cyclically to n_threads OpenMP threads, each with its own histograms. */
+ * Threads: denominators dealt cyclically to n_threads OpenMP threads, each with its own histograms; the
+ * lockstep references also keep their own per-denominator rows, copied out at the end, so that two threads
+ * never write the same cache line (rows of q and q + 1 share one). */
 #include <stdint.h>
 #include <string.h>
 #include <stdlib.h>
@@ -14,6 +16,14 @@
 #define LANES 64
 
 static void merge(int64_t *dst, const int64_t *src, int n) { for (int i = 0; i < n; i++) dst[i] += src[i]; }
+
+/* rows of the thread's denominators q_lo + tid, q_lo + tid + nt, ...: how many, and copying them out */
+static int64_t thread_rows(int64_t q_lo, int64_t q_hi, int tid, int nt) {
+    return q_lo + tid <= q_hi ? (q_hi - q_lo - tid) / nt + 1 : 0;
+}
+static void copy_rows_out(int64_t *per_den, const int64_t *local, int64_t n_local, int tid, int nt) {
+    for (int64_t k = 0; k < n_local; k++) memcpy(per_den + (tid + k * nt) * 6, local + k * 6, 6 * sizeof(int64_t));
+}
 
 void cf_plain(int64_t q_lo, int64_t q_hi, int64_t cap, int n_threads,
               int64_t *hist, int64_t *lengths, int64_t *per_den) {
@@ -42,10 +52,10 @@ void cf_plain(int64_t q_lo, int64_t q_hi, int64_t cap, int n_threads,
     }
 }
 
-typedef struct { int64_t q; uint32_t p; } gen_t;
+typedef struct { int64_t q; uint32_t p; int64_t k; } gen_t;  /* k: q's row among the thread's */
 static inline int next_pair(gen_t *g, int64_t q_hi, int step) {
     g->p++;
-    if (g->p >= g->q) { g->q += step; g->p = 1; }
+    if (g->p >= g->q) { g->q += step; g->p = 1; g->k++; }
     return g->q <= q_hi;
 }
 
@@ -58,15 +68,16 @@ void cf_lockstep(int64_t q_lo, int64_t q_hi, int64_t cap, int n_threads,
         float xf[LANES] __attribute__((aligned(64))), yf[LANES] __attribute__((aligned(64)));
         int32_t sym[LANES] __attribute__((aligned(64)));
         uint64_t packed[LANES] __attribute__((aligned(64)));
-        int32_t start[LANES]; int64_t lq[LANES]; uint8_t act[LANES];
-        int64_t *rows = per_den;  /* rows indexed by q - q_lo; disjoint between threads */
-        gen_t g = { q_lo + tid, 0 };
+        int32_t start[LANES]; int64_t lk[LANES]; uint8_t act[LANES];
+        int64_t n_local = thread_rows(q_lo, q_hi, tid, nt);
+        int64_t *local = calloc(n_local * 6 + 6, sizeof(int64_t));
+        gen_t g = { q_lo + tid, 0, 0 };
         if (g.q > q_hi) g.q = q_hi + 1;
         int n_active = 0;
         for (int l = 0; l < LANES; l++) {
             packed[l] = 0; start[l] = 0;
             if (g.q <= q_hi && next_pair(&g, q_hi, nt)) {
-                xf[l] = (float)g.q; yf[l] = (float)g.p; lq[l] = g.q; act[l] = 1; n_active++;
+                xf[l] = (float)g.q; yf[l] = (float)g.p; lk[l] = g.k; act[l] = 1; n_active++;
             } else { xf[l] = 2.f; yf[l] = 1.f; act[l] = 0; }
         }
         const float capf = (float)cap;
@@ -90,10 +101,10 @@ void cf_lockstep(int64_t q_lo, int64_t q_hi, int64_t cap, int n_threads,
                         uint64_t v = packed[l];
                         for (int k = 0; k < 8; k++) h[k] += (v >> (8 * k)) & 255;
                         lh[n]++;
-                        int64_t *row = rows + (lq[l] - q_lo) * 6;
+                        int64_t *row = local + lk[l] * 6;
                         row[0]++; row[1] += n;
                         for (int d = 0; d < 4; d++) row[2 + d] += (v >> (8 * d)) & 255;
-                        if (next_pair(&g, q_hi, nt)) { xf[l] = (float)g.q; yf[l] = (float)g.p; lq[l] = g.q; }
+                        if (next_pair(&g, q_hi, nt)) { xf[l] = (float)g.q; yf[l] = (float)g.p; lk[l] = g.k; }
                         else { act[l] = 0; n_active--; xf[l] = 2.f; yf[l] = 1.f; }
                     } else { xf[l] = 2.f; yf[l] = 1.f; }
                     packed[l] = 0; start[l] = t + 1;
@@ -101,6 +112,8 @@ void cf_lockstep(int64_t q_lo, int64_t q_hi, int64_t cap, int n_threads,
             }
         }
         /* idle lanes counted symbol 1 (digit 2) in h only through s >= 8: nothing to undo */
+        copy_rows_out(per_den, local, n_local, tid, nt);
+        free(local);
         #pragma omp critical
         { merge(hist, h, cap); merge(lengths, lh, MAXLEN); }
     }
@@ -240,10 +253,12 @@ void cf_simd(int64_t q_lo, int64_t q_hi, int64_t cap, int n_threads, int mirror,
         float xs[LANES] __attribute__((aligned(64))), ys[LANES] __attribute__((aligned(64)));
         uint32_t cnt[NCNT][LANES] __attribute__((aligned(64)));
         uint32_t acc[NACC][LANES] __attribute__((aligned(64)));
-        int32_t start[LANES], sym1[LANES]; int64_t lq[LANES];
+        int32_t start[LANES], sym1[LANES]; int64_t lk[LANES];
         uint32_t active[GROUPS] = {0};
         memset(cnt, 0, sizeof cnt); memset(acc, 0, sizeof acc);
-        int64_t q = q_lo + tid, p = 0;  /* generator state */
+        int64_t q = q_lo + tid, p = 0, k = 0;  /* generator state; k: q's row among the thread's */
+        int64_t n_local = thread_rows(q_lo, q_hi, tid, nt);
+        int64_t *local = calloc(n_local * 6 + 6, sizeof(int64_t));
         int n_active = 0;
         const float capf = (float)cap;
         int32_t t = -1;
@@ -253,15 +268,15 @@ void cf_simd(int64_t q_lo, int64_t q_hi, int64_t cap, int n_threads, int mirror,
                 p++; \
                 if (mirror ? (2 * p >= q) : (p >= q)) { \
                     if (mirror && q % 2 == 0) { /* (q/2)/q = [0; 2], its own mirror */ \
-                        int64_t *row = per_den + (q - q_lo) * 6; \
+                        int64_t *row = local + k * 6; \
                         row[0]++; row[1]++; row[3]++; h[1]++; lh[1]++; } \
-                    q += nt; p = 0; continue; } \
+                    q += nt; k++; p = 0; continue; } \
                 if (!mirror) { xs[l] = (float)q; ys[l] = (float)p; cnt[0][l] = cnt[1][l] = cnt[2][l] = cnt[3][l] = cnt[4][l] = 0; \
                     start[l] = t + 1; got = 1; break; } \
                 int64_t a1 = (uint32_t)q / (uint32_t)p, r = q - a1 * p; \
                 int s1 = (int)(a1 < cap ? a1 : cap) - 1, s2 = a1 - 1 < cap ? (int)a1 - 2 : (int)cap - 1; \
                 if (r == 0) { /* [a1] and its mirror [1, a1 - 1] */ \
-                    int64_t *row = per_den + (q - q_lo) * 6; \
+                    int64_t *row = local + k * 6; \
                     h[s1]++; h[0]++; h[s2]++; lh[1]++; lh[2]++; row[0] += 2; row[1] += 3; \
                     if (s1 < 4) row[2 + s1]++; row[2]++; if (s2 < 4) row[2 + s2]++; continue; } \
                 xs[l] = (float)p; ys[l] = (float)r; \
@@ -270,7 +285,7 @@ void cf_simd(int64_t q_lo, int64_t q_hi, int64_t cap, int n_threads, int mirror,
                 sym1[l] = (int)(a1 <= cap ? a1 - 1 : cap); start[l] = t; got = 1; } \
             got; })
         for (int l = 0; l < LANES; l++) {
-            if (NEXT_FRACTION()) { lq[l] = q; active[l / GW] |= 1u << (l % GW); n_active++; }
+            if (NEXT_FRACTION()) { lk[l] = k; active[l / GW] |= 1u << (l % GW); n_active++; }
             else { xs[l] = 2.f; ys[l] = 1.f; }
         }
         int since_flush = 0;
@@ -285,7 +300,7 @@ void cf_simd(int64_t q_lo, int64_t q_hi, int64_t cap, int n_threads, int mirror,
                     int l = GW * g + __builtin_ctz(m);
                     if (active[g] & (1u << (l % GW))) {
                         int n = t - start[l] + 1;
-                        int64_t *row = per_den + (lq[l] - q_lo) * 6;
+                        int64_t *row = local + lk[l] * 6;
                         uint32_t v = cnt[0][l];
                         if (mirror) {
                             int s1 = sym1[l], pooled = s1 == cap;
@@ -299,7 +314,7 @@ void cf_simd(int64_t q_lo, int64_t q_hi, int64_t cap, int n_threads, int mirror,
                             lh[n]++; row[0]++; row[1] += n;
                             for (int d = 0; d < 4; d++) row[2 + d] += (v >> (8 * d)) & 255;
                         }
-                        if (NEXT_FRACTION()) lq[l] = q;
+                        if (NEXT_FRACTION()) lk[l] = k;
                         else { active[g] &= ~(1u << (l % GW)); n_active--; xs[l] = 2.f; ys[l] = 1.f;
                                for (int c = 0; c < NCNT; c++) cnt[c][l] = 0; }
                     } else {
@@ -311,6 +326,8 @@ void cf_simd(int64_t q_lo, int64_t q_hi, int64_t cap, int n_threads, int mirror,
             if (++since_flush == FLUSH_STEPS) { simd_flush(acc, h); since_flush = 0; }
         }
         simd_flush(acc, h);
+        copy_rows_out(per_den, local, n_local, tid, nt);
+        free(local);
         #pragma omp critical
         { merge(hist, h, cap); merge(lengths, lh, MAXLEN); }
         #undef NEXT_FRACTION

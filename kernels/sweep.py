@@ -47,8 +47,10 @@ How it is fast (see the design note on kernel speed).
   packed tag: weights, sym1, n, row) that is booked BUFFER at a time. The mirror's counters are p/q's
   plus a delta that depends on sym1 only (a table built per chunk). The sums of symbols 0..7 of both
   are int32 reductions over the buffer, symbol by symbol, which LLVM vectorises (exact: below 2**31
-  per flush); the rare 4-bit fields are visited one by one, with their three sums packed in one
-  int64 per symbol and flush; per-denominator sums stay in registers while the row stays the same.
+  per flush); the 4-bit fields of the rare symbols are summed as SWAR words (fields spread to 16 and
+  32 bits) in loops LLVM vectorises too, and only counts >= 2 (for c**2) and the mirror's changes at
+  rare symbols take scalar branches; per-denominator sums stay in registers while the row stays the
+  same.
   Each of these keeps consecutive pairs from waiting on each other's stores and keeps the count of
   scalar instructions per pair low, which is what bounds this kernel (see bench/).
 * Words of length >= 2 are read from a per-lane ring of symbols when the lane finishes (no ring when
@@ -304,17 +306,14 @@ def _mirror_row_deltas(cap):
     return deltas
 
 
-# The 2-visit rare-field loop sends the visits of empty counters to these unused table slots, rotating,
-# so that they do not form a chain of read-modify-writes on one slot.
-DUMMY_SLOTS = 8
-# Copies of the length table, rotating per pair, for the same reason.
+# Copies of the length table, rotating per pair, so that consecutive pairs of the same length do not
+# form a chain of read-modify-writes on one slot.
 LENGTH_COPIES = 4
-# A rare symbol's three per-flush sums share one int64: sum w*c in bits 0..20, sum c*(w*n + mirror)
-# in bits 21..41 and sum w*c**2 (with the mirror's) in bits 42..63. Per flush and symbol >= 8 (a digit
-# >= 9, so c <= 9; the mirror's c <= 10) they are at most BUFFER * 2 * 9, BUFFER * 9 * 93 and
-# BUFFER * (81 + 100), below 2**21, 2**21 and 2**22; partial sums may borrow, the totals decode exactly.
-RARE_WEIGHTED_SHIFT = 21
-RARE_SQUARES_SHIFT = 42
+# Nibble masks: a 4-bit count >= 2 has one of bits 1..3; every 4th nibble, in 16-bit fields; the low
+# 16 bits of each 32-bit half.
+_NIBBLE_ABOVE_ONE = np.uint64(0xEEEEEEEEEEEEEEEE)
+_SPREAD16 = np.uint64(0x000F000F000F000F)
+_SPREAD32 = np.uint64(0x0000FFFF0000FFFF)
 # Buffer rows (int64): packed counters small, mid, high of p/q, and its tag (see _lane_chunk).
 BUF_SMALL, BUF_MID, BUF_HIGH, BUF_TAG = 0, 1, 2, 3
 # Fields of a tag: own weight (bit 0), mirror weight (bit 1), sym1 (bits 2..7), n (bits 8..15),
@@ -324,16 +323,17 @@ TAG_ROW_SHIFT = 16
 
 
 @serial
-def _flush_finished(nb, buf, cap, row_deltas, work32, sym_sums, rare, length_tab, per_den):
+def _flush_finished(nb, buf, cap, row_deltas, work32, sym_sums, length_tab, per_den):
     """Book ``nb`` buffered finished pairs (p/q and its mirror) into the digit sums.
 
     ``buf[:, i]``: packed counters of p/q and its tag (weights 0/1 of p/q and of the mirror, the
     symbol index sym1 of its first digit a1 (``cap`` when a1 > cap), its length n, its
     per-denominator row). The mirror has length n + 1 and p/q's counts, plus one at symbol 0, minus
     one at sym1 and plus one at sym2 = sym1 - 1 (the last two only when sym1 < cap). Symbols 0..7 of
-    both are summed by loops over the buffer that LLVM vectorises; the scalar loop does the rest with
-    few memory updates per pair (per-denominator sums in registers while the row stays the same, one
-    packed update per rare symbol).
+    both, and SWAR words of the rare 4-bit counters, are summed by loops over the buffer that LLVM
+    vectorises; the scalar loop does the rest with few memory updates per pair (per-denominator sums
+    in registers while the row stays the same; rare counts >= 2 and the mirror's changes at rare
+    symbols, a1 >= 9, behind branches).
     """
     # int32 columns, so that the symbol loops run on 32-bit vector lanes: the byte counters of
     # symbols 0..3 and 4..7, masks -1/0 of the weights 1/0, weighted lengths, and the symbols where
@@ -413,59 +413,98 @@ def _flush_finished(nb, buf, cap, row_deltas, work32, sym_sums, rare, length_tab
         copy = (i & (LENGTH_COPIES - 1)) * RING
         length_tab[copy + n] += own
         length_tab[copy + n + 1] += mirror
-        # rare symbols (>= 8) of p/q with both weights; the mirror's differences follow below.
-        # Visit only the nonzero 4-bit fields of both rare-symbol words: usually none or one, so two
-        # visits are made branch-free (an empty word gives c = 0: with the top bit forced on,
-        # trailing_zeros finds field 15 of a zero word), and a loop takes the rare rest
-        unit = w + ((w * n + mirror) << RARE_WEIGHTED_SHIFT)
+        # rare symbols (>= 8): sum w * c and sum c * (w * n + mirror) are SWAR sums after this loop,
+        # which also count c for c**2; here only counts c >= 2 (a nibble with one of bits 1..3) add
+        # c**2 - c, and the mirror's differences at sym1 and sym1 - 1 are booked
         v_mid = np.uint64(buf[BUF_MID, i])
         v_high = np.uint64(buf[BUF_HIGH, i])
-        v_mid0 = v_mid
-        v_high0 = v_high
-        for visit in range(2):
-            in_mid = v_mid != _U0
-            v = v_mid if in_mid else v_high
-            field = trailing_zeros(v | _TOP_BIT) >> _U2
-            shift = field * _U4
-            c = np.int64((v >> shift) & _U15)
-            cleared = v & ~(_U15 << shift)
-            v_mid = cleared if in_mid else v_mid
-            v_high = v_high if in_mid else cleared
-            sym = np.int64(field) + (8 if in_mid else 24)
-            sym = sym if c != 0 else PACKED_SYMBOLS + ((2 * i + visit) & (DUMMY_SLOTS - 1))
-            rare[sym] += c * unit + ((c * c * w) << RARE_SQUARES_SHIFT)
-        while (v_mid | v_high) != _U0:
-            in_mid = v_mid != _U0
-            v = v_mid if in_mid else v_high
-            field = trailing_zeros(v) >> _U2
-            shift = field * _U4
-            c = np.int64((v >> shift) & _U15)
-            cleared = v & ~(_U15 << shift)
-            v_mid = cleared if in_mid else v_mid
-            v_high = v_high if in_mid else cleared
-            sym = np.int64(field) + (8 if in_mid else 24)
-            rare[sym] += c * unit + ((c * c * w) << RARE_SQUARES_SHIFT)
+        if ((v_mid | v_high) & _NIBBLE_ABOVE_ONE) != _U0:
+            for word in range(2):
+                v = v_mid if word == 0 else v_high
+                rest = v & _NIBBLE_ABOVE_ONE
+                while rest != _U0:
+                    field = trailing_zeros(rest) >> _U2
+                    shift = field * _U4
+                    rest &= ~(_U15 << shift)
+                    c = np.int64((v >> shift) & _U15)
+                    sym_sums[2, np.int64(field) + (8 if word == 0 else 24)] += w * (c * c - c)
         if sym1 >= 8 and sym1 < cap and mirror != 0:
             # the mirror has one sym1 less and one sym2 = sym1 - 1 more (p/q counts sym1 at least once)
             m = n + 1
-            c1 = _packed_count(_U0, v_mid0, v_high0, sym1)
-            rare[sym1] += -1 - (m << RARE_WEIGHTED_SHIFT) + ((1 - 2 * c1) << RARE_SQUARES_SHIFT)
+            c1 = _packed_count(_U0, v_mid, v_high, sym1)
+            sym_sums[0, sym1] -= 1
+            sym_sums[1, sym1] -= m
+            sym_sums[2, sym1] += 1 - 2 * c1
             sym2 = sym1 - 1
             if sym2 >= 8:
-                c2 = _packed_count(_U0, v_mid0, v_high0, sym2)
-                rare[sym2] += 1 + (m << RARE_WEIGHTED_SHIFT) + ((2 * c2 + 1) << RARE_SQUARES_SHIFT)
+                c2 = _packed_count(_U0, v_mid, v_high, sym2)
+                sym_sums[0, sym2] += 1
+                sym_sums[1, sym2] += m
+                sym_sums[2, sym2] += 2 * c2 + 1
     if nb > 0:
         per_den[row_now, 0] += row_counts & 0xFFFFFFFF
         per_den[row_now, 1] += row_counts >> 32
         for d in range(ROW_DIGITS):
             per_den[row_now, 2 + d] += np.int64((row_digits >> np.uint64(16 * d)) & np.uint64(0xFFFF))
-    for sym in range(8, PACKED_SYMBOLS):
-        packed = np.uint64(rare[sym])
-        sym_sums[0, sym] += np.int64(packed & np.uint64((1 << RARE_WEIGHTED_SHIFT) - 1))
-        sym_sums[1, sym] += np.int64((packed >> np.uint64(RARE_WEIGHTED_SHIFT)) &
-                                     np.uint64((1 << (RARE_SQUARES_SHIFT - RARE_WEIGHTED_SHIFT)) - 1))
-        sym_sums[2, sym] += np.int64(packed >> np.uint64(RARE_SQUARES_SHIFT))
-        rare[sym] = 0
+    # SWAR sums of the 4-bit counters of symbols 8..23 (word 0) and 24..39 (word 1), in a loop LLVM
+    # vectorises: nibble 4g + j of a word is spread to 16-bit field g of e_j and summed times w (at
+    # most 2 * 9 * BUFFER < 2**16 per field and flush); times w * n + mirror (at most 9 * 93 < 2**16
+    # per entry) the four 16-bit fields of one product are split into 32-bit fields before summing
+    for word in range(2):
+        row = BUF_MID + word
+        base = 8 + 16 * word
+        t0 = _U0
+        t1 = _U0
+        t2 = _U0
+        t3 = _U0
+        u0 = _U0
+        u1 = _U0
+        u2 = _U0
+        u3 = _U0
+        o0 = _U0
+        o1 = _U0
+        o2 = _U0
+        o3 = _U0
+        for i in range(nb):
+            tag = np.uint64(buf[BUF_TAG, i])
+            own = tag & _U1
+            mirror = (tag >> _U1) & _U1
+            n = (tag >> np.uint64(TAG_N_SHIFT)) & _U255
+            w = own + mirror
+            wn = w * n + mirror
+            v = np.uint64(buf[row, i])
+            e0 = v & _SPREAD16
+            e1 = (v >> _U4) & _SPREAD16
+            e2 = (v >> _U8) & _SPREAD16
+            e3 = (v >> np.uint64(12)) & _SPREAD16
+            t0 += e0 * w
+            t1 += e1 * w
+            t2 += e2 * w
+            t3 += e3 * w
+            p0 = e0 * wn
+            p1 = e1 * wn
+            p2 = e2 * wn
+            p3 = e3 * wn
+            u0 += p0 & _SPREAD32
+            u1 += p1 & _SPREAD32
+            u2 += p2 & _SPREAD32
+            u3 += p3 & _SPREAD32
+            o0 += (p0 >> np.uint64(16)) & _SPREAD32
+            o1 += (p1 >> np.uint64(16)) & _SPREAD32
+            o2 += (p2 >> np.uint64(16)) & _SPREAD32
+            o3 += (p3 >> np.uint64(16)) & _SPREAD32
+        for j in range(4):
+            t = t0 if j == 0 else (t1 if j == 1 else (t2 if j == 2 else t3))
+            u = u0 if j == 0 else (u1 if j == 1 else (u2 if j == 2 else u3))
+            o = o0 if j == 0 else (o1 if j == 1 else (o2 if j == 2 else o3))
+            for g in range(4):
+                sym = base + 4 * g + j
+                total = np.int64((t >> np.uint64(16 * g)) & np.uint64(0xFFFF))
+                half = u if g % 2 == 0 else o
+                sym_sums[0, sym] += total
+                sym_sums[1, sym] += np.int64((half >> np.uint64(32 * (g // 2))) & np.uint64(0xFFFFFFFF))
+                # c**2 = c unless c >= 2 (booked in the loop above)
+                sym_sums[2, sym] += total
 
 
 BUFFER = 512
@@ -508,7 +547,6 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
 
     buf = np.zeros((4, BUFFER), np.int64)
     work32 = np.zeros((8, BUFFER), np.int32)
-    rare = np.zeros(PACKED_SYMBOLS + DUMMY_SLOTS, np.int64)
     nb = 0
     gen = np.zeros((7, GEN_BATCH), np.int64)
     g_len = 0
@@ -547,7 +585,7 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
             if active[lane]:
                 if (not coprime_only) or xf[lane] == float_one:
                     if nb == BUFFER:
-                        _flush_finished(nb, buf, cap, row_deltas, work32, sym_sums, rare, length_tab, per_den)
+                        _flush_finished(nb, buf, cap, row_deltas, work32, sym_sums, length_tab, per_den)
                         nb = 0
                     n = t - t_first[lane] + 1
                     tag = lane_tag[lane]
@@ -709,7 +747,7 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                     # p divides q: the expansion is [a1]; gcd(p, q) = p
                     if (not coprime_only) or p == 1:
                         if nb == BUFFER:
-                            _flush_finished(nb, buf, cap, row_deltas, work32, sym_sums, rare, length_tab,
+                            _flush_finished(nb, buf, cap, row_deltas, work32, sym_sums, length_tab,
                                             per_den)
                             nb = 0
                         buf[BUF_SMALL, nb] = gen[GEN_SMALL, i]
@@ -783,7 +821,7 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
         for lane in range(LANES):
             ended |= np.uint64(yf[lane] == float_zero) << np.uint64(lane)
 
-    _flush_finished(nb, buf, cap, row_deltas, work32, sym_sums, rare, length_tab, per_den)
+    _flush_finished(nb, buf, cap, row_deltas, work32, sym_sums, length_tab, per_den)
     for copy in range(LENGTH_COPIES):
         for n in range(RING):
             length_hist[n] += length_tab[copy * RING + n]

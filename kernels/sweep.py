@@ -6,7 +6,8 @@ membership arrays so that this module never needs to know about family grammar:
 
 * ``num_ok[p]`` / ``den_ok[q]`` (uint8): 1 if p (q) is an admissible numerator (denominator);
   an empty array means "every value is admissible".
-* ``coprime_only``: keep only gcd(p, q) = 1.
+* ``coprime_only``: keep only gcd(p, q) = 1 (p sharing a prime factor with q is skipped before it is
+  expanded; the gcd, the last remainder, is also checked when an expansion ends).
 
 Symbols and words. With cap D >= 2 a digit a maps to the symbol index min(a, D) - 1 in [0, D-1]; the
 index D-1 is the pooled symbol "D+". A word of length k (1 <= k <= K) has the code
@@ -508,9 +509,151 @@ def _flush_finished(nb, buf, cap, row_deltas, work32, sym_sums, length_tab, per_
 
 
 BUFFER = 512
+@serial
+def _distinct_prime_factors(m, out):
+    """Write the distinct prime factors of ``m`` (1 <= m < 2**62) into ``out``; return how many.
+
+    Trial division up to sqrt(m): at most 23,170 divisions for m < 2**31, once per denominator, while
+    the sweep expands m/2 fractions of that denominator.
+    """
+    count = 0
+    if m % 2 == 0:
+        out[count] = 2
+        count += 1
+        while m % 2 == 0:
+            m //= 2
+    d = np.int64(3)
+    while d * d <= m:
+        if m % d == 0:
+            out[count] = d
+            count += 1
+            while m % d == 0:
+                m //= d
+        d += 2
+    if m > 1:
+        out[count] = m
+        count += 1
+    return count
+
+
 # Fractions generated per batch of first quotients (rows of ``gen`` in _lane_chunk).
 GEN_BATCH = 256
 GEN_P, GEN_Q, GEN_R, GEN_TAG, GEN_SMALL, GEN_MID, GEN_HIGH = 0, 1, 2, 3, 4, 5, 6
+
+
+GEN_STATE_P, GEN_STATE_Q, GEN_MORE, GEN_FACTORS_OF, GEN_N_FACTORS = 0, 1, 2, 3, 4
+
+
+@serial
+def _first_quotients(gen, g_len, q_base, cap):
+    """First quotient a1 = floor(q/p), remainder, tag bits and counters of the batch's fractions."""
+    # branch-free so that LLVM vectorises it; floor(q/p) in float64 is exact for q < 2**52 after one
+    # correction either way
+    for i in range(g_len):
+        p = gen[GEN_P, i]
+        q = gen[GEN_Q, i]
+        a1 = np.int64(np.float64(q) / np.float64(p))
+        r = q - a1 * p
+        low = np.int64(r < 0)
+        a1 -= low
+        r += low * p
+        high_r = np.int64(r >= p)
+        a1 += high_r
+        r -= high_r * p
+        sym1 = min(a1, cap + 1) - 1
+        s_counted = min(sym1, cap - 1)
+        su = np.uint64(s_counted)
+        gen[GEN_R, i] = r
+        gen[GEN_TAG, i] |= (sym1 << 2) | ((q - q_base) << TAG_ROW_SHIFT)
+        gen[GEN_SMALL, i] = np.int64(np.uint64(su < _U8) << ((su * _U8) & _U63))
+        gen[GEN_MID, i] = np.int64(np.uint64((su >= _U8) & (su < _U24)) << (((su - _U8) * _U4) & _U63))
+        gen[GEN_HIGH, i] = np.int64(np.uint64(su >= _U24) << (((su - _U24) * _U4) & _U63))
+
+
+@serial
+def _next_batch_all(gen, state, q_hi, q_step, q_base, den_ok, cap):
+    """:func:`_next_batch` for families without numerator or coprimality conditions."""
+    has_den = den_ok.shape[0] > 0
+    gen_p = state[GEN_STATE_P]
+    gen_q = state[GEN_STATE_Q]
+    more = state[GEN_MORE] != 0
+    g_len = 0
+    while more and g_len < GEN_BATCH:
+        gen_p += 1
+        if 2 * gen_p >= gen_q or (has_den and den_ok[gen_q] == 0):
+            gen_q += q_step
+            gen_p = 0
+            more = gen_q <= q_hi
+            continue
+        # every p of an admissible q is a member, with its mirror
+        gen[GEN_P, g_len] = gen_p
+        gen[GEN_Q, g_len] = gen_q
+        gen[GEN_TAG, g_len] = 3
+        g_len += 1
+    _first_quotients(gen, g_len, q_base, cap)
+    state[GEN_STATE_P] = gen_p
+    state[GEN_STATE_Q] = gen_q
+    state[GEN_MORE] = np.int64(more)
+    return g_len
+
+
+@serial
+def _next_batch(gen, state, factors, residues, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap):
+    """Fill ``gen`` with the next fractions of the chunk and their first quotients; returns how many.
+
+    For families with numerator or coprimality conditions (:func:`_next_batch_all` for the others).
+    ``state``: the generator (p, q, whether q <= q_hi, the q whose prime factors are in ``factors``,
+    how many). Called once per batch of GEN_BATCH fractions.
+    """
+    has_num = num_ok.shape[0] > 0
+    has_den = den_ok.shape[0] > 0
+    gen_p = state[GEN_STATE_P]
+    gen_q = state[GEN_STATE_Q]
+    more = state[GEN_MORE] != 0
+    factors_of = state[GEN_FACTORS_OF]
+    n_factors = state[GEN_N_FACTORS]
+    # next batch of p with 2p < q where p/q (flags bit 0) or its mirror (bit 1) is a
+    # member; the middle fraction p = q/2 is booked after the loop
+    g_len = 0
+    while more and g_len < GEN_BATCH:
+        gen_p += 1
+        if 2 * gen_p >= gen_q or (has_den and den_ok[gen_q] == 0):
+            gen_q += q_step
+            gen_p = 0
+            more = gen_q <= q_hi
+            continue
+        # a candidate is written at g_len in any case and kept by counting it:
+        # whether it is kept is data, and a branch on it would be mispredicted often
+        keep = True
+        if coprime_only:
+            # skip p sharing a prime factor with q before expanding it: p mod each
+            # prime factor of q, kept as p counts up from 1
+            if factors_of != gen_q:
+                n_factors = _distinct_prime_factors(gen_q, factors)
+                for k in range(n_factors):
+                    residues[k] = 0
+                factors_of = gen_q
+            for k in range(n_factors):
+                rk = residues[k] + 1
+                rk = 0 if rk == factors[k] else rk
+                residues[k] = rk
+                keep &= rk != 0
+        if has_num:
+            flags = np.int64(num_ok[gen_p] != 0) | (np.int64(num_ok[gen_q - gen_p] != 0) << 1)
+            keep &= flags != 0
+        else:
+            flags = np.int64(3)
+        gen[GEN_P, g_len] = gen_p
+        gen[GEN_Q, g_len] = gen_q
+        gen[GEN_TAG, g_len] = flags
+        g_len += np.int64(keep)
+    _first_quotients(gen, g_len, q_base, cap)
+    state[GEN_STATE_P] = gen_p
+    state[GEN_STATE_Q] = gen_q
+    state[GEN_MORE] = np.int64(more)
+    state[GEN_FACTORS_OF] = factors_of
+    state[GEN_N_FACTORS] = n_factors
+    return g_len
 
 
 @serial
@@ -549,6 +692,9 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
     work32 = np.zeros((8, BUFFER), np.int32)
     nb = 0
     gen = np.zeros((7, GEN_BATCH), np.int64)
+    # coprime_only: the distinct prime factors of the q being generated (at most 9 for q < 2**31)
+    factors = np.zeros(16, np.int64)
+    residues = np.zeros(16, np.int64)
     g_len = 0
     g_next = 0
     sym_sums = np.zeros((3, PACKED_SYMBOLS), np.int64)
@@ -570,9 +716,10 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
 
     has_num = num_ok.shape[0] > 0
     has_den = den_ok.shape[0] > 0
-    gen_q = q_first
-    gen_p = np.int64(0)
-    more = q_first <= q_hi
+    gen_state = np.zeros(5, np.int64)
+    gen_state[GEN_STATE_Q] = q_first
+    gen_state[GEN_MORE] = q_first <= q_hi
+    gen_state[GEN_FACTORS_OF] = -1
     n_active = 0
     t = np.int64(-1)
     # lane refills happen at the end of step t; the first fill is "step -1"
@@ -694,49 +841,13 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
             got = False
             while True:
                 if g_next == g_len:
-                    if not more:
+                    if gen_state[GEN_MORE] == 0:
                         break
-                    # next batch of p with 2p < q where p/q (flags bit 0) or its mirror (bit 1) is a
-                    # member; the middle fraction p = q/2 is booked after the loop
-                    g_len = 0
-                    while more and g_len < GEN_BATCH:
-                        gen_p += 1
-                        if 2 * gen_p >= gen_q or (has_den and den_ok[gen_q] == 0):
-                            gen_q += q_step
-                            gen_p = 0
-                            more = gen_q <= q_hi
-                            continue
-                        if has_num:
-                            flags = np.int64(num_ok[gen_p] != 0) | (np.int64(num_ok[gen_q - gen_p] != 0) << 1)
-                            if flags == 0:
-                                continue
-                        else:
-                            flags = np.int64(3)
-                        gen[GEN_P, g_len] = gen_p
-                        gen[GEN_Q, g_len] = gen_q
-                        gen[GEN_TAG, g_len] = flags
-                        g_len += 1
-                    # first quotients of the batch, branch-free so that LLVM vectorises it; floor(q/p)
-                    # in float64 is exact for q < 2**52 after one correction either way
-                    for i in range(g_len):
-                        p = gen[GEN_P, i]
-                        q = gen[GEN_Q, i]
-                        a1 = np.int64(np.float64(q) / np.float64(p))
-                        r = q - a1 * p
-                        low = np.int64(r < 0)
-                        a1 -= low
-                        r += low * p
-                        high_r = np.int64(r >= p)
-                        a1 += high_r
-                        r -= high_r * p
-                        sym1 = min(a1, cap + 1) - 1
-                        s_counted = min(sym1, cap - 1)
-                        su = np.uint64(s_counted)
-                        gen[GEN_R, i] = r
-                        gen[GEN_TAG, i] |= (sym1 << 2) | ((q - q_base) << TAG_ROW_SHIFT)
-                        gen[GEN_SMALL, i] = np.int64(np.uint64(su < _U8) << ((su * _U8) & _U63))
-                        gen[GEN_MID, i] = np.int64(np.uint64((su >= _U8) & (su < _U24)) << (((su - _U8) * _U4) & _U63))
-                        gen[GEN_HIGH, i] = np.int64(np.uint64(su >= _U24) << (((su - _U24) * _U4) & _U63))
+                    if coprime_only or has_num:
+                        g_len = _next_batch(gen, gen_state, factors, residues, q_hi, q_step, q_base, num_ok,
+                                            den_ok, coprime_only, cap)
+                    else:
+                        g_len = _next_batch_all(gen, gen_state, q_hi, q_step, q_base, den_ok, cap)
                     g_next = 0
                     continue
                 i = g_next

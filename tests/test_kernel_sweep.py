@@ -144,3 +144,37 @@ def test_lanes_at_the_float32_exact_limit(q):
 def test_large_cap_falls_back_to_reference():
     expected = ref.reference_sweep_block_serial(2, 80, EMPTY, EMPTY, False, 57, 2)
     assert_same(sweep.sweep_block(2, 80, EMPTY, EMPTY, False, 57, 2, 2), expected)
+
+
+@pytest.mark.parametrize("m", [1, 2, 3, 4, 12, 30030, 2 ** 20, 3 ** 13, 510510 * 19, 2 ** 31 - 1,
+                               2 ** 31 - 2, 46337 ** 2, 2 ** 61 - 1, (2 ** 31 - 1) * 6])
+def test_distinct_prime_factors_match_sympy(m):
+    out = np.zeros(16, np.int64)
+    count = sweep._distinct_prime_factors(m, out)
+    assert sorted(out[:count].tolist()) == sympy.primefactors(m)
+
+
+@given(m=st.integers(1, 10 ** 12))
+@settings(max_examples=200, deadline=None)
+def test_distinct_prime_factors_property(m):
+    out = np.zeros(16, np.int64)
+    count = sweep._distinct_prime_factors(m, out)
+    assert sorted(out[:count].tolist()) == sympy.primefactors(m)
+
+
+@pytest.mark.parametrize("q_lo,q_hi", [(30025, 30035), (2 ** 24 - 3, 2 ** 24 - 3), (2 ** 24 + 3, 2 ** 24 + 3)])
+def test_coprime_prefilter_at_composite_and_boundary_denominators(q_lo, q_hi):
+    # 30030 = 2*3*5*7*11*13 has the most distinct prime factors below 5e5; the prefilter skips p
+    # sharing one with q before expansion. Near 2**24 only a slice of numerators, to stay fast.
+    if q_hi > 10 ** 6:
+        num_ok = np.zeros(q_hi + 1, np.uint8)
+        num_ok[[1, 2, 3, 6, 5_000_000, 9_999_991, q_hi // 2, q_hi - 2, q_hi - 1]] = 1
+    else:
+        num_ok = EMPTY
+    expected = ref.reference_sweep_block_serial(q_lo, q_hi, num_ok, EMPTY, True, 32, 3)
+    assert_same(sweep.sweep_block_serial(q_lo, q_hi, num_ok, EMPTY, True, 32, 3), expected)
+    assert_same(sweep.sweep_block(q_lo, q_hi, num_ok, EMPTY, True, 32, 3, 3), expected)
+    # the members: Euler's phi(q) per denominator (sympy's totient) when every numerator is admissible
+    if num_ok is EMPTY:
+        rows = expected[3]
+        assert [int(r) for r in rows[:, 0]] == [int(sympy.totient(q)) for q in range(q_lo, q_hi + 1)]

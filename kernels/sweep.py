@@ -56,7 +56,10 @@ How it is fast (see the design note on kernel speed).
   scalar instructions per pair low, which is what bounds this kernel (see bench/).
 * Words of length >= 2 are read from a per-lane ring of symbols when the lane finishes (no ring when
   max_k = 1); the per-word scratch ``stamp << 8 | count`` gives per-rational counts without clearing,
-  and one packed column holds sum c and the prior-count sum (see PACKED_WORD_PERIOD_MASK).
+  and one packed column holds sum c and the prior-count sum (see PACKED_WORD_PERIOD_MASK). For
+  max_k <= 3 the words p/q and its mirror share (all of p/q's from position 1 on) are booked once
+  with both weights; only these enter the scratch, and the few words of one of the two read their
+  prior counts from it without writing it.
 * Inside the lane loop no function taking arrays is called per lane (the family generator and the
   word booking for max_k <= 3 are written out): each such call costs atomic reference-count updates.
 * Lanes are refilled from the next fraction as soon as they finish, so they flow across consecutive
@@ -140,6 +143,12 @@ def _scratch_step(v, stamp, delta):
     count = (v & 255) if (v >> 8) == stamp else 0
     now = count + delta
     return (stamp << 8) | now, delta + ((delta * min(count, now)) << 32)
+
+
+@serial
+def _shared_count(v, stamp):
+    """The count of a word row in rational ``stamp`` from its scratch ``v`` (0 if another rational's)."""
+    return (v & 255) if (v >> 8) == stamp else 0
 
 
 @serial
@@ -702,9 +711,7 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
     length_tab = np.zeros(LENGTH_COPIES * RING, np.int64)
 
     n_words = word_sums.shape[0]
-    # one more row: the dummy row of updates with delta 0
-    wtab = np.zeros((n_words + 1 if words else 1, 4), np.int64)
-    dummy_row = n_words
+    wtab = np.zeros((n_words if words else 1, 4), np.int64)
     offsets = np.zeros(max_k + 2, np.int64)
     for k in range(1, max_k + 2):
         offsets[k] = word_offset(cap, k)
@@ -751,19 +758,28 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                         sym_mirror2 = cap - 1 if sym1 == cap else sym1 - 1
                         tf = t_first[lane]
                         if max_k <= 3:
-                            # _record_words_pair written out for max_k <= 3: a call with array
-                            # arguments costs atomic reference-count updates per finished lane
+                            # _record_words_pair's result for max_k <= 3, written out (a call with
+                            # array arguments costs atomic reference-count updates per finished
+                            # lane) and cheaper: p/q's symbols t_0..t_(n-1) (n >= 2 in a lane) and
+                            # the mirror's 0, m2, t_1, ..., t_(n-1) share every word of p/q from
+                            # position 1 on, booked once with weight own + mirror; the scratch
+                            # counts hold only these, so p/q's word at position 0 and the mirror's
+                            # words at positions 0 and 1 read their prior counts from it without
+                            # changing it (the mirror's two words may be the same word)
                             weight = own + mirror
                             add2 = own * (n - 1) + mirror * n
                             add3 = own * (n - 2) + mirror * (n - 1)
-                            prev1 = np.uint64(ring[tf & RING_MASK, lane])
-                            prev2 = _U0
                             cap_u = np.uint64(cap)
                             row2_u = np.uint64(row2)
                             row3_u = np.uint64(row3)
+                            t_0 = np.uint64(ring[tf & RING_MASK, lane])
+                            t_1 = np.uint64(ring[(tf + 1) & RING_MASK, lane])
+                            t_2 = np.uint64(ring[(tf + 2) & RING_MASK, lane])
+                            prev1 = t_1
+                            prev2 = t_0 * cap_u + t_1
                             # unsigned indices: no negative-index wraparound test per update
                             if max_k == 2:
-                                for j in range(1, n):
+                                for j in range(2, n):
                                     s = np.uint64(ring[(tf + j) & RING_MASK, lane])
                                     idx = row2_u + prev1 * cap_u + s
                                     v = wtab[idx, 3]
@@ -773,7 +789,7 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                                     wtab[idx, 2] += add2
                                     prev1 = s
                             else:
-                                for j in range(1, n):
+                                for j in range(2, n):
                                     s = np.uint64(ring[(tf + j) & RING_MASK, lane])
                                     code2 = prev1 * cap_u + s
                                     idx = row2_u + code2
@@ -782,7 +798,7 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                                     wtab[idx, 3] = (stamp << 8) | (before + 1)
                                     wtab[idx, 0] += weight * (1 + (before << 32))
                                     wtab[idx, 2] += add2
-                                    if j >= 2:
+                                    if j >= 3:
                                         idx = row3_u + prev2 * cap_u + s
                                         v = wtab[idx, 3]
                                         before = (v & 255) if (v >> 8) == stamp else 0
@@ -791,48 +807,36 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                                         wtab[idx, 2] += add3
                                     prev2 = code2
                                     prev1 = s
+                            if own != 0:
+                                # p/q's words at position 0
+                                idx = row2_u + t_0 * cap_u + t_1
+                                wtab[idx, 0] += 1 + (_shared_count(wtab[idx, 3], stamp) << 32)
+                                wtab[idx, 2] += n - 1
+                                if max_k == 3 and n >= 3:
+                                    idx = row3_u + (t_0 * cap_u + t_1) * cap_u + t_2
+                                    wtab[idx, 0] += 1 + (_shared_count(wtab[idx, 3], stamp) << 32)
+                                    wtab[idx, 2] += n - 2
                             if mirror != 0:
-                                # the mirror's changes at its first two positions, as in
-                                # _record_words_pair, straight-line (a lane's n is >= 2; an
-                                # update that n < 3 rules out goes to the dummy row with delta 0)
-                                s_1 = np.int64(ring[tf & RING_MASK, lane])
-                                s_2 = np.int64(ring[(tf + 1) & RING_MASK, lane])
-                                s_3 = np.int64(ring[(tf + 2) & RING_MASK, lane])
-                                first2 = s_1 * cap + s_2
-                                mirror2 = sym_mirror2 * cap + s_2
-                                idx = row2 + first2
-                                scratch, add = _scratch_step(wtab[idx, 3], stamp, -1)
-                                wtab[idx, 3] = scratch
-                                wtab[idx, 0] += add
-                                wtab[idx, 2] -= n
-                                idx = row2 + sym_mirror2
-                                scratch, add = _scratch_step(wtab[idx, 3], stamp, 1)
-                                wtab[idx, 3] = scratch
-                                wtab[idx, 0] += add
-                                wtab[idx, 2] += n
-                                idx = row2 + mirror2
-                                scratch, add = _scratch_step(wtab[idx, 3], stamp, 1)
-                                wtab[idx, 3] = scratch
-                                wtab[idx, 0] += add
-                                wtab[idx, 2] += n
+                                # the mirror's words at positions 0 and 1: (0, m2), (m2, t_1) and
+                                # (0, m2, t_1), (m2, t_1, t_2)
+                                m2 = np.uint64(sym_mirror2)
+                                first = row2_u + m2
+                                second = row2_u + m2 * cap_u + t_1
+                                wtab[first, 0] += 1 + (_shared_count(wtab[first, 3], stamp) << 32)
+                                wtab[first, 2] += n
+                                prior = _shared_count(wtab[second, 3], stamp) + np.int64(first == second)
+                                wtab[second, 0] += 1 + (prior << 32)
+                                wtab[second, 2] += n
                                 if max_k == 3:
-                                    long3 = n >= 3
-                                    delta3 = np.int64(long3)
-                                    idx = row3 + first2 * cap + s_3 if long3 else dummy_row
-                                    scratch, add = _scratch_step(wtab[idx, 3], stamp, -delta3)
-                                    wtab[idx, 3] = scratch
-                                    wtab[idx, 0] += add
-                                    wtab[idx, 2] -= delta3 * (n - 1)
-                                    idx = row3 + mirror2
-                                    scratch, add = _scratch_step(wtab[idx, 3], stamp, 1)
-                                    wtab[idx, 3] = scratch
-                                    wtab[idx, 0] += add
-                                    wtab[idx, 2] += n - 1
-                                    idx = row3 + mirror2 * cap + s_3 if long3 else dummy_row
-                                    scratch, add = _scratch_step(wtab[idx, 3], stamp, delta3)
-                                    wtab[idx, 3] = scratch
-                                    wtab[idx, 0] += add
-                                    wtab[idx, 2] += delta3 * (n - 1)
+                                    first = row3_u + m2 * cap_u + t_1
+                                    wtab[first, 0] += 1 + (_shared_count(wtab[first, 3], stamp) << 32)
+                                    wtab[first, 2] += n - 1
+                                    if n >= 3:
+                                        second = row3_u + (m2 * cap_u + t_1) * cap_u + t_2
+                                        prior = (_shared_count(wtab[second, 3], stamp) +
+                                                 np.int64(first == second))
+                                        wtab[second, 0] += 1 + (prior << 32)
+                                        wtab[second, 2] += n - 1
                         else:
                             _record_words_pair(ring, lane, tf, n, max_k, cap, offsets, codes, wtab,
                                                stamp, own, mirror, sym_mirror2)

@@ -325,7 +325,9 @@ def markdown(r):
               + ". "
               "Time of words k<=3 over digits only: "
               + ", ".join(f"{v:.2f}x ({t} thr)" for t, v in r["ratio_words3_vs_digits"].items())
-              + f". Peak RSS {r['peak_rss_mb']:.0f} MB.",
+              + f". Peak RSS {r['peak_rss_mb']:.0f} MB (this process, with any kernel compiled in it: "
+              + ", ".join(f"{n} {t:.1f} s" for n, t in r["compile_seconds"].items() if t >= 1.0)
+              + "; `bench/bench_memory.py` measures whole sweeps).",
               "Wall time of one sweep of this workload (median): "
               + "; ".join(f"{n} " + ", ".join(f"{s:.2f} s ({t} thr)" for t, s in v.items())
                           for n, v in r["sweep_seconds"].items()) + ".",

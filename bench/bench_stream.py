@@ -16,7 +16,6 @@ import mpmath
 import numpy as np
 
 from cfsweep import stream as S
-from cfsweep.kernels import stream as K
 
 
 def plain_stream(n: int) -> list[int]:

@@ -103,7 +103,6 @@ _U24 = np.uint64(24)
 _U63 = np.uint64(63)
 _U255 = np.uint64(255)
 _U2_53 = np.uint64(FLOAT64_EXACT)
-_TOP_BIT = np.uint64(1) << np.uint64(63)
 
 
 @serial

@@ -1,8 +1,9 @@
 """Sieve and sweep timings per family (issue: families of rationals).
 
 For each family at Q (default 20000): time and memory of the membership sieves, time of the independent
-member count (the reducer's check), and the sweep kernel time (digits only, K = 1, cap 32, all threads),
-compile time kept out (a warm-up call on a small block first). Writes bench/results/families.json and .md.
+member count (the reducer's check), and the sweep kernel time (digits only, K = 1, cap 32, all threads,
+as many chunks as a sweep uses), compile time kept out (a warm-up call on a small block first). Writes
+bench/results/families.json and .md.
 
     python bench/bench_families.py [--max-den 20000] [--repeats 3]
 """
@@ -18,6 +19,7 @@ from pathlib import Path
 import numba
 
 from cfsweep.families import expected_members, parse_family
+from cfsweep.blocks import KERNEL_CHUNKS_PER_THREAD
 from cfsweep.kernels.sweep import sweep_block
 
 FAMILIES = ["all", "reduced", "squarefree", "prime", "reduced,den=squarefree", "num=squarefree,den=prime"]
@@ -34,7 +36,8 @@ def main() -> None:
     for text in FAMILIES:
         fam = parse_family(text)
         num_ok, den_ok, cop = fam.membership(200)
-        sweep_block(2, 200, num_ok, den_ok, cop, 32, 1, threads)  # compile / load cache outside the timing
+        # compile / load the cache outside the timing
+        sweep_block(2, 200, num_ok, den_ok, cop, 32, 1, threads * KERNEL_CHUNKS_PER_THREAD)
         sieve_s, count_s, sweep_s = [], [], []
         for _ in range(args.repeats):
             t0 = time.perf_counter()
@@ -44,7 +47,7 @@ def main() -> None:
             expected = sum(expected_members(fam, 2, q))
             count_s.append(time.perf_counter() - t0)
             t0 = time.perf_counter()
-            out = sweep_block(2, q, num_ok, den_ok, cop, 32, 1, threads)
+            out = sweep_block(2, q, num_ok, den_ok, cop, 32, 1, threads * KERNEL_CHUNKS_PER_THREAD)
             sweep_s.append(time.perf_counter() - t0)
         members = int(out[3][:, 0].sum())
         assert members == expected, (text, members, expected)  # validate before reporting

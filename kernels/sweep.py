@@ -549,7 +549,7 @@ GEN_BATCH = 256
 GEN_P, GEN_Q, GEN_R, GEN_TAG, GEN_SMALL, GEN_MID, GEN_HIGH = 0, 1, 2, 3, 4, 5, 6
 
 
-GEN_STATE_P, GEN_STATE_Q, GEN_MORE, GEN_FACTORS_OF, GEN_N_FACTORS = 0, 1, 2, 3, 4
+GEN_STATE_P, GEN_STATE_Q, GEN_MORE, GEN_FACTORS_OF, GEN_N_FACTORS, GEN_WINDOW, GEN_MASK = 0, 1, 2, 3, 4, 5, 6
 
 
 @serial
@@ -606,12 +606,14 @@ def _next_batch_all(gen, state, q_hi, q_step, q_base, den_ok, cap):
 
 
 @serial
-def _next_batch(gen, state, factors, residues, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap):
+def _next_batch(gen, state, factors, patterns, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap):
     """Fill ``gen`` with the next fractions of the chunk and their first quotients; returns how many.
 
     For families with numerator or coprimality conditions (:func:`_next_batch_all` for the others).
     ``state``: the generator (p, q, whether q <= q_hi, the q whose prime factors are in ``factors``,
-    how many). Called once per batch of GEN_BATCH fractions.
+    how many, and the window of 64 numerators starting at ``state[GEN_WINDOW]`` whose bit mask marks
+    those sharing a prime factor with q). ``patterns[k]``: bits 0, r, 2r, ... below 64 of the k-th
+    prime factor r. Called once per batch of GEN_BATCH fractions.
     """
     has_num = num_ok.shape[0] > 0
     has_den = den_ok.shape[0] > 0
@@ -620,6 +622,8 @@ def _next_batch(gen, state, factors, residues, q_hi, q_step, q_base, num_ok, den
     more = state[GEN_MORE] != 0
     factors_of = state[GEN_FACTORS_OF]
     n_factors = state[GEN_N_FACTORS]
+    window = state[GEN_WINDOW]
+    mask = np.uint64(state[GEN_MASK])
     # next batch of p with 2p < q where p/q (flags bit 0) or its mirror (bit 1) is a
     # member; the middle fraction p = q/2 is booked after the loop
     g_len = 0
@@ -634,18 +638,26 @@ def _next_batch(gen, state, factors, residues, q_hi, q_step, q_base, num_ok, den
         # whether it is kept is data, and a branch on it would be mispredicted often
         keep = True
         if coprime_only:
-            # skip p sharing a prime factor with q before expanding it: p mod each
-            # prime factor of q, kept as p counts up from 1
+            # skip p sharing a prime factor with q before expanding it, from a bit mask of the
+            # multiples of q's prime factors in a window of 64 numerators, made once per window
             if factors_of != gen_q:
                 n_factors = _distinct_prime_factors(gen_q, factors)
                 for k in range(n_factors):
-                    residues[k] = 0
+                    pattern = _U0
+                    for position in range(0, 64, factors[k]):
+                        pattern |= _U1 << np.uint64(position)
+                    patterns[k] = np.int64(pattern)
                 factors_of = gen_q
-            for k in range(n_factors):
-                rk = residues[k] + 1
-                rk = 0 if rk == factors[k] else rk
-                residues[k] = rk
-                keep &= rk != 0
+                window = gen_p - 64  # forces a new window below
+            if gen_p - window >= 64:
+                window = gen_p
+                mask = _U0
+                for k in range(n_factors):
+                    r = factors[k]
+                    first = (r - window % r) % r  # the first multiple of r at or after window
+                    if first < 64:
+                        mask |= np.uint64(patterns[k]) << np.uint64(first)
+            keep &= ((mask >> np.uint64(gen_p - window)) & _U1) == _U0
         if has_num:
             flags = np.int64(num_ok[gen_p] != 0) | (np.int64(num_ok[gen_q - gen_p] != 0) << 1)
             keep &= flags != 0
@@ -661,6 +673,8 @@ def _next_batch(gen, state, factors, residues, q_hi, q_step, q_base, num_ok, den
     state[GEN_MORE] = np.int64(more)
     state[GEN_FACTORS_OF] = factors_of
     state[GEN_N_FACTORS] = n_factors
+    state[GEN_WINDOW] = window
+    state[GEN_MASK] = np.int64(mask)
     return g_len
 
 
@@ -702,7 +716,7 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
     gen = np.zeros((7, GEN_BATCH), np.int64)
     # coprime_only: the distinct prime factors of the q being generated (at most 9 for q < 2**31)
     factors = np.zeros(16, np.int64)
-    residues = np.zeros(16, np.int64)
+    patterns = np.zeros(16, np.int64)
     g_len = 0
     g_next = 0
     sym_sums = np.zeros((3, PACKED_SYMBOLS), np.int64)
@@ -722,7 +736,7 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
 
     has_num = num_ok.shape[0] > 0
     has_den = den_ok.shape[0] > 0
-    gen_state = np.zeros(5, np.int64)
+    gen_state = np.zeros(7, np.int64)
     gen_state[GEN_STATE_Q] = q_first
     gen_state[GEN_MORE] = q_first <= q_hi
     gen_state[GEN_FACTORS_OF] = -1
@@ -847,7 +861,7 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                     if gen_state[GEN_MORE] == 0:
                         break
                     if coprime_only or has_num:
-                        g_len = _next_batch(gen, gen_state, factors, residues, q_hi, q_step, q_base, num_ok,
+                        g_len = _next_batch(gen, gen_state, factors, patterns, q_hi, q_step, q_base, num_ok,
                                             den_ok, coprime_only, cap)
                     else:
                         g_len = _next_batch_all(gen, gen_state, q_hi, q_step, q_base, den_ok, cap)
@@ -1033,7 +1047,9 @@ def sweep_block(q_lo, q_hi, num_ok, den_ok, coprime_only, cap, max_k, n_chunks):
     """Parallel sweep of one block over ``n_chunks`` per-thread buffers merged after the loop.
 
     Denominators are dealt to chunks cyclically (q_lo + c, q_lo + c + n_chunks, ...) because the work
-    per denominator grows with q. The per-denominator rows are disjoint between chunks. The integers
+    per denominator grows with q; a thread takes a run of consecutive chunks, so several chunks per
+    thread give every thread denominators of every residue class (even q have far fewer members in
+    coprime or square-free families). The per-denominator rows are disjoint between chunks. The integers
     returned do not depend on ``n_chunks`` or the thread count.
     """
     if cap > PACKED_SYMBOLS:

@@ -108,6 +108,15 @@ def tables_from_arrays(cap, max_k, word_sums, position_sums, length_hist, per_de
     return tables
 
 
+# The sweep kernel deals denominators to chunks cyclically and each thread takes a run of consecutive
+# chunks, so with several chunks per thread every thread gets denominators of every residue class
+# mod 2, 3, ...: with one chunk per thread, 2 threads split even from odd q, and for reduced or
+# square-free families even q have far fewer members (measured at Q = 20000 on 2 threads: 1 chunk
+# per thread 1.01 s for `reduced`, 4 per thread 0.81 s; square-free numerators and denominators
+# 1.02 s and 0.78 s; `all` unchanged). The integers do not depend on the chunk count.
+KERNEL_CHUNKS_PER_THREAD = 4
+
+
 def compute_block(family: Family, q_lo: int, q_hi: int, cap: int, max_k: int, threads: int,
                   goodness: dict | None = None) -> BlockResult:
     """Sweep all members p/q of ``family`` with q_lo <= q <= q_hi on ``threads`` Numba threads.
@@ -120,7 +129,7 @@ def compute_block(family: Family, q_lo: int, q_hi: int, cap: int, max_k: int, th
     if family.predicate is not None:
         return _predicate_block(family, q_lo, q_hi, cap, max_k, goodness, t0)
     word_sums, position_sums, length_hist, per_den = sweep_block(
-        q_lo, q_hi, num_ok, den_ok, coprime_only, cap, max_k, threads)
+        q_lo, q_hi, num_ok, den_ok, coprime_only, cap, max_k, threads * KERNEL_CHUNKS_PER_THREAD)
     good = None
     if goodness and goodness.get("good_eps"):
         eps = np.asarray(goodness["good_eps"], np.float64)

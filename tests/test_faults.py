@@ -28,7 +28,7 @@ from cfsweep.store import LOCK_FILE
 from reference import cf_fraction
 
 # Small sweeps (a second or two each); kill windows come from a measured uninterrupted subprocess run.
-PARAMS = dict(max_den=1000, cap=8, words=3, blocks=8)
+PARAMS = dict(max_den=4000, cap=8, words=3, blocks=8)  # blocks of some milliseconds even with a fast kernel
 BUSY = dict(max_den=2000, cap=8, words=3, blocks=16)  # long enough for a second process to meet it
 INT_COLUMNS = ["family", "word", "k", "count", "positions"]
 

@@ -123,12 +123,17 @@ def _record_words(ring, mask, lane, t_first, n, k_min, max_k, cap, offsets, code
             codes[k] = code
             if k >= k_min:
                 idx = offsets[k] + code
-                v = wtab[idx, 3]
-                before = (v & 255) if (v >> 8) == stamp else 0
+                before = _shared_count(wtab[idx, 3], stamp)
                 wtab[idx, 3] = (stamp << 8) | (before + 1)
                 wtab[idx, 0] += 1
                 wtab[idx, 1] += before
                 wtab[idx, 2] += n - k + 1
+
+
+@serial
+def _shared_count(v, stamp):
+    """The count of a word row in rational ``stamp`` from its scratch ``v`` (0 if another rational's)."""
+    return (v & 255) if (v >> 8) == stamp else 0
 
 
 @serial
@@ -139,15 +144,9 @@ def _scratch_step(v, stamp, delta):
     in the low 32 bits, prior counts in the high, see PACKED_WORD_PERIOD_MASK) gains: the prior count
     of an added occurrence, minus that of a removed one.
     """
-    count = (v & 255) if (v >> 8) == stamp else 0
+    count = _shared_count(v, stamp)
     now = count + delta
     return (stamp << 8) | now, delta + ((delta * min(count, now)) << 32)
-
-
-@serial
-def _shared_count(v, stamp):
-    """The count of a word row in rational ``stamp`` from its scratch ``v`` (0 if another rational's)."""
-    return (v & 255) if (v >> 8) == stamp else 0
 
 
 @serial
@@ -173,8 +172,7 @@ def _record_words_rolling(ring, lane, t_first, n, max_k, cap, offsets, codes, wt
             code = codes[k - 1] * cap + s
             codes[k] = code
             idx = offsets[k] + code
-            v = wtab[idx, 3]
-            before = (v & 255) if (v >> 8) == stamp else 0
+            before = _shared_count(wtab[idx, 3], stamp)
             wtab[idx, 3] = (stamp << 8) | (before + 1)
             wtab[idx, 0] += weight * (1 + (before << 32))
             wtab[idx, 2] += own * (n - k + 1) + mirror * (n - k + 2)
@@ -184,7 +182,8 @@ def _record_words_rolling(ring, lane, t_first, n, max_k, cap, offsets, codes, wt
 @serial
 def _record_words_pair(ring, lane, t_first, n, max_k, cap, offsets, codes, wtab, stamp,
                        own, mirror, sym_mirror2):
-    """Words of lengths 2..max_k of p/q (weight ``own``) and of its mirror (weight ``mirror``).
+    """Words of lengths 2..max_k of p/q (weight ``own``) and of its mirror (weight ``mirror``), for
+    max_k > 3 (the lane loop books max_k <= 3 itself).
 
     The ring holds the symbols s_1..s_n of p/q (2p < q, so a1 >= 2); the mirror (q - p)/q has the
     symbols 0, ``sym_mirror2``, s_2, ..., s_n. Every occurrence of p/q except the words at its first
@@ -193,36 +192,7 @@ def _record_words_pair(ring, lane, t_first, n, max_k, cap, offsets, codes, wtab,
     The scratch counts first hold p/q's counts, then the mirror's, so the prior-count sums of both
     are exact.
     """
-    weight = own + mirror
-    if max_k <= 3:
-        # the common case without the rolling-code array: the words ending at position j
-        row2 = offsets[2]
-        row3 = offsets[3]
-        add2 = own * (n - 1) + mirror * n
-        add3 = own * (n - 2) + mirror * (n - 1)
-        prev1 = np.int64(ring[t_first & RING_MASK, lane])
-        prev2 = np.int64(0)
-        for j in range(1, n):
-            s = np.int64(ring[(t_first + j) & RING_MASK, lane])
-            code2 = prev1 * cap + s
-            idx = row2 + code2
-            v = wtab[idx, 3]
-            before = (v & 255) if (v >> 8) == stamp else 0
-            wtab[idx, 3] = (stamp << 8) | (before + 1)
-            wtab[idx, 0] += weight * (1 + (before << 32))
-            wtab[idx, 2] += add2
-            if max_k == 3 and j >= 2:
-                idx = row3 + prev2 * cap + s
-                v = wtab[idx, 3]
-                before = (v & 255) if (v >> 8) == stamp else 0
-                wtab[idx, 3] = (stamp << 8) | (before + 1)
-                wtab[idx, 0] += weight * (1 + (before << 32))
-                wtab[idx, 2] += add3
-            prev2 = code2
-            prev1 = s
-    else:
-        _record_words_rolling(ring, lane, t_first, n, max_k, cap, offsets, codes, wtab, stamp,
-                              own, mirror)
+    _record_words_rolling(ring, lane, t_first, n, max_k, cap, offsets, codes, wtab, stamp, own, mirror)
     if mirror == 0:
         return
     for k in range(2, max_k + 1):
@@ -579,37 +549,9 @@ def _first_quotients(gen, g_len, q_base, cap):
 
 
 @serial
-def _next_batch_all(gen, state, q_hi, q_step, q_base, den_ok, cap):
-    """:func:`_next_batch` for families without numerator or coprimality conditions."""
-    has_den = den_ok.shape[0] > 0
-    gen_p = state[GEN_STATE_P]
-    gen_q = state[GEN_STATE_Q]
-    more = state[GEN_MORE] != 0
-    g_len = 0
-    while more and g_len < GEN_BATCH:
-        gen_p += 1
-        if 2 * gen_p >= gen_q or (has_den and den_ok[gen_q] == 0):
-            gen_q += q_step
-            gen_p = 0
-            more = gen_q <= q_hi
-            continue
-        # every p of an admissible q is a member, with its mirror
-        gen[GEN_P, g_len] = gen_p
-        gen[GEN_Q, g_len] = gen_q
-        gen[GEN_TAG, g_len] = 3
-        g_len += 1
-    _first_quotients(gen, g_len, q_base, cap)
-    state[GEN_STATE_P] = gen_p
-    state[GEN_STATE_Q] = gen_q
-    state[GEN_MORE] = np.int64(more)
-    return g_len
-
-
-@serial
 def _next_batch(gen, state, factors, patterns, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap):
     """Fill ``gen`` with the next fractions of the chunk and their first quotients; returns how many.
 
-    For families with numerator or coprimality conditions (:func:`_next_batch_all` for the others).
     ``state``: the generator (p, q, whether q <= q_hi, the q whose prime factors are in ``factors``,
     how many, and the window of 64 numerators starting at ``state[GEN_WINDOW]`` whose bit mask marks
     those sharing a prime factor with q). ``patterns[k]``: bits 0, r, 2r, ... below 64 of the k-th
@@ -795,8 +737,7 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                                 for j in range(2, n):
                                     s = np.uint64(ring[(tf + j) & RING_MASK, lane])
                                     idx = row2_u + prev1 * cap_u + s
-                                    v = wtab[idx, 3]
-                                    before = (v & 255) if (v >> 8) == stamp else 0
+                                    before = _shared_count(wtab[idx, 3], stamp)
                                     wtab[idx, 3] = (stamp << 8) | (before + 1)
                                     wtab[idx, 0] += weight * (1 + (before << 32))
                                     wtab[idx, 2] += add2
@@ -806,15 +747,13 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                                     s = np.uint64(ring[(tf + j) & RING_MASK, lane])
                                     code2 = prev1 * cap_u + s
                                     idx = row2_u + code2
-                                    v = wtab[idx, 3]
-                                    before = (v & 255) if (v >> 8) == stamp else 0
+                                    before = _shared_count(wtab[idx, 3], stamp)
                                     wtab[idx, 3] = (stamp << 8) | (before + 1)
                                     wtab[idx, 0] += weight * (1 + (before << 32))
                                     wtab[idx, 2] += add2
                                     if j >= 3:
                                         idx = row3_u + prev2 * cap_u + s
-                                        v = wtab[idx, 3]
-                                        before = (v & 255) if (v >> 8) == stamp else 0
+                                        before = _shared_count(wtab[idx, 3], stamp)
                                         wtab[idx, 3] = (stamp << 8) | (before + 1)
                                         wtab[idx, 0] += weight * (1 + (before << 32))
                                         wtab[idx, 2] += add3
@@ -860,11 +799,8 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                 if g_next == g_len:
                     if gen_state[GEN_MORE] == 0:
                         break
-                    if coprime_only or has_num:
-                        g_len = _next_batch(gen, gen_state, factors, patterns, q_hi, q_step, q_base, num_ok,
-                                            den_ok, coprime_only, cap)
-                    else:
-                        g_len = _next_batch_all(gen, gen_state, q_hi, q_step, q_base, den_ok, cap)
+                    g_len = _next_batch(gen, gen_state, factors, patterns, q_hi, q_step, q_base, num_ok,
+                                        den_ok, coprime_only, cap)
                     g_next = 0
                     continue
                 i = g_next

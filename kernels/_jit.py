@@ -12,4 +12,7 @@ PARALLEL = dict(nogil=True, cache=True, error_model="numpy", parallel=True)
 UNCACHED = dict(nogil=True, cache=False, error_model="numpy")
 
 serial = numba.njit(**SERIAL)
+# Small helpers that take arrays and run per occurrence inside a kernel's loop: inlined in Numba's IR,
+# so that the call costs no atomic reference-count updates of the array arguments.
+inline = numba.njit(inline="always", **SERIAL)
 parallel = numba.njit(**PARALLEL)

@@ -74,7 +74,7 @@ from numba import prange
 # LLVM's cttz; an internal but long-standing Numba intrinsic
 from numba.cpython.unsafe.numbers import trailing_zeros
 
-from ._jit import parallel, serial
+from ._jit import inline, parallel, serial
 from .euclid import MAX_LENGTH
 from .sweep_reference import (ROW_COLUMNS, ROW_DIGITS, n_word_rows, reference_sweep_block,
                               reference_sweep_block_serial, word_offset)
@@ -123,7 +123,7 @@ def _record_words(ring, mask, lane, t_first, n, k_min, max_k, cap, offsets, code
             codes[k] = code
             if k >= k_min:
                 idx = offsets[k] + code
-                before = _shared_count(wtab[idx, 3], stamp)
+                before = _shared_count(wtab[idx, WORD_SCRATCH], stamp)
                 wtab[idx, 3] = (stamp << 8) | (before + 1)
                 wtab[idx, 0] += 1
                 wtab[idx, 1] += before
@@ -140,22 +140,79 @@ def _shared_count(v, stamp):
 def _scratch_step(v, stamp, delta):
     """One occurrence added (delta = +1), removed (-1) or neither (0) at a word row of rational ``stamp``.
 
-    ``v`` is the row's scratch ``stamp << 8 | count``; returns the new scratch and what column 0 (sum c
-    in the low 32 bits, prior counts in the high, see PACKED_WORD_PERIOD_MASK) gains: the prior count
-    of an added occurrence, minus that of a removed one.
+    ``v`` is the row's scratch ``stamp << 8 | count``; returns the new scratch and what the row's cell
+    gains in its sum c and prior-count fields (see CELL_PRIOR_SHIFT): the prior count of an added
+    occurrence, minus that of a removed one.
     """
     count = _shared_count(v, stamp)
     now = count + delta
-    return (stamp << 8) | now, delta + ((delta * min(count, now)) << 32)
+    return (stamp << 8) | now, delta + ((delta * min(count, now)) << CELL_PRIOR_SHIFT)
+
+
+# A word row of the sweep's table ``wtab[row]`` is (cell, scratch). The cell packs sum c (bits 0..15),
+# the sum of prior counts (bits 16..37: sum c**2 = sum c + 2 * that) and sum m (bits 38..) into one
+# int64, cell = c + prior * 2**16 + m * 2**38, so that an occurrence costs one update of it. The
+# packing is linear and each field is decoded as a signed number (c in [-2**15, 2**15), prior in
+# [-2**21, 2**21)), so removals (k > 3: a rational's occurrence taken back, possibly after the cell
+# was emptied) decode exactly too. Every update adds at most 2 to c (the weights of p/q and its
+# mirror), and an occurrence's prior count and m are at most 46 (an expansion of q < 2**31 has at
+# most 46 partial quotients, its mirror 47), so while |c| < 2**15 the prior field stays below
+# 46 * 2**15 < 2**21: a cell whose c field reads CELL_SPILL_AT or more (negative c reads as more)
+# is emptied into the int64 sums before the next update.
+CELL_PRIOR_SHIFT = 16
+CELL_M_SHIFT = 38
+CELL_COUNT_MASK = (1 << CELL_PRIOR_SHIFT) - 1
+CELL_SPILL_AT = (1 << (CELL_PRIOR_SHIFT - 1)) - 2
+# columns of the sweep's word table: the cell, the scratch and the int64 sums cells are spilled into
+# (a spill writes no other array: a kernel function that writes a second array behind a branch pays
+# atomic reference-count updates of it on every call)
+WORD_CELL, WORD_SCRATCH, WORD_TOTAL, WORD_SQUARES, WORD_WEIGHTED = 0, 1, 2, 3, 4
+WORD_COLUMNS = 5
+_COUNT_SIGN = 1 << (CELL_PRIOR_SHIFT - 1)
+_PRIOR_BITS = CELL_M_SHIFT - CELL_PRIOR_SHIFT
+_PRIOR_MASK = (1 << _PRIOR_BITS) - 1
+_PRIOR_SIGN = 1 << (_PRIOR_BITS - 1)
+
+
+@serial
+def _cell_sums(cell):
+    """Sum c, sum c**2 and sum c*m held in a packed cell (see CELL_PRIOR_SHIFT)."""
+    total = ((cell & CELL_COUNT_MASK) ^ _COUNT_SIGN) - _COUNT_SIGN
+    rest = (cell - total) >> CELL_PRIOR_SHIFT
+    prior = ((rest & _PRIOR_MASK) ^ _PRIOR_SIGN) - _PRIOR_SIGN
+    return total, total + 2 * prior, (rest - prior) >> _PRIOR_BITS
+
+
+@inline
+def _spill_cell(wtab, idx, cell):
+    """Add a packed cell's sum c, sum c**2 and sum c*m to the int64 columns of word row ``idx``."""
+    total, squares, weighted = _cell_sums(cell)
+    wtab[idx, WORD_TOTAL] += total
+    wtab[idx, WORD_SQUARES] += squares
+    wtab[idx, WORD_WEIGHTED] += weighted
+
+
+@serial
+def _cells_to_sums(wtab, first_row, word_sums):
+    """Add the sums of word rows ``first_row``.. of ``wtab`` (spilled and in the cells) to ``word_sums``."""
+    for idx in range(first_row, word_sums.shape[0]):
+        total, squares, weighted = _cell_sums(wtab[idx, WORD_CELL])
+        word_sums[idx, 0] += wtab[idx, WORD_TOTAL] + total
+        word_sums[idx, 1] += wtab[idx, WORD_SQUARES] + squares
+        word_sums[idx, 2] += wtab[idx, WORD_WEIGHTED] + weighted
 
 
 @serial
 def _word_occurrence(wtab, idx, stamp, delta, m):
     """Add (delta = +1) or remove (delta = -1) one occurrence of word row ``idx`` in rational ``stamp``."""
-    scratch, add = _scratch_step(wtab[idx, 3], stamp, delta)
-    wtab[idx, 3] = scratch
-    wtab[idx, 0] += add
-    wtab[idx, 2] += delta * m
+    scratch, add = _scratch_step(wtab[idx, WORD_SCRATCH], stamp, delta)
+    wtab[idx, WORD_SCRATCH] = scratch
+    cell = wtab[idx, WORD_CELL] + add + ((delta * m) << CELL_M_SHIFT)
+    # a removal may leave a negative count field, which reads as full and is spilled too
+    if (cell & CELL_COUNT_MASK) >= CELL_SPILL_AT:
+        _spill_cell(wtab, idx, cell)
+        cell = 0
+    wtab[idx, WORD_CELL] = cell
 
 
 @serial
@@ -172,10 +229,16 @@ def _record_words_rolling(ring, lane, t_first, n, max_k, cap, offsets, codes, wt
             code = codes[k - 1] * cap + s
             codes[k] = code
             idx = offsets[k] + code
-            before = _shared_count(wtab[idx, 3], stamp)
-            wtab[idx, 3] = (stamp << 8) | (before + 1)
-            wtab[idx, 0] += weight * (1 + (before << 32))
-            wtab[idx, 2] += own * (n - k + 1) + mirror * (n - k + 2)
+            before = _shared_count(wtab[idx, WORD_SCRATCH], stamp)
+            wtab[idx, WORD_SCRATCH] = (stamp << 8) | (before + 1)
+            # the cell update written out: a call with array arguments per occurrence costs atomic
+            # reference-count updates
+            cell = (wtab[idx, WORD_CELL] + weight * (1 + (before << CELL_PRIOR_SHIFT)) +
+                    ((own * (n - k + 1) + mirror * (n - k + 2)) << CELL_M_SHIFT))
+            if (cell & CELL_COUNT_MASK) >= CELL_SPILL_AT:
+                _spill_cell(wtab, idx, cell)
+                cell = 0
+            wtab[idx, WORD_CELL] = cell
         codes[1] = s
 
 
@@ -224,27 +287,6 @@ def _words_to_sums(wtab, first_row, word_sums):
         word_sums[idx, 0] += wtab[idx, 0]
         word_sums[idx, 1] += wtab[idx, 0] + 2 * wtab[idx, 1]
         word_sums[idx, 2] += wtab[idx, 2]
-
-
-# The sweep's word table packs, in column 0, sum c (low 32 bits) and the sum of prior counts (high 32
-# bits) into one update per occurrence; it is emptied into the int64 sums every 2**20 rationals, within
-# which a word gets at most 2**20 * 2 * 46 < 2**32 occurrences and 2**20 * 2 * (46 * 45 / 2 + 2) < 2**32
-# prior counts, so both fields decode exactly (intermediate borrows cancel in wrapping int64 sums).
-PACKED_WORD_PERIOD_MASK = (1 << 20) - 1
-
-
-@serial
-def _packed_words_to_sums(wtab, first_row, word_sums):
-    """Empty the packed columns 0 (see PACKED_WORD_PERIOD_MASK) and 2 of ``wtab`` into ``word_sums``."""
-    for idx in range(first_row, word_sums.shape[0]):
-        packed = np.uint64(wtab[idx, 0])
-        total = np.int64(packed & np.uint64(0xFFFFFFFF))
-        prior = np.int64(packed >> np.uint64(32))
-        word_sums[idx, 0] += total
-        word_sums[idx, 1] += total + 2 * prior
-        word_sums[idx, 2] += wtab[idx, 2]
-        wtab[idx, 0] = 0
-        wtab[idx, 2] = 0
 
 
 @serial
@@ -666,7 +708,7 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
     length_tab = np.zeros(LENGTH_COPIES * RING, np.int64)
 
     n_words = word_sums.shape[0]
-    wtab = np.zeros((n_words if words else 1, 4), np.int64)
+    wtab = np.zeros((n_words if words else 1, WORD_COLUMNS), np.int64)
     offsets = np.zeros(max_k + 2, np.int64)
     for k in range(1, max_k + 2):
         offsets[k] = word_offset(cap, k)
@@ -705,8 +747,6 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                     nb += 1
                     if words:
                         stamp += 1
-                        if (stamp & PACKED_WORD_PERIOD_MASK) == 0:
-                            _packed_words_to_sums(wtab, row2, word_sums)
                         own = tag & 1
                         mirror = (tag >> 1) & 1
                         sym1 = (tag >> 2) & 63
@@ -722,8 +762,10 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                             # words at positions 0 and 1 read their prior counts from it without
                             # changing it (the mirror's two words may be the same word)
                             weight = own + mirror
-                            add2 = own * (n - 1) + mirror * n
-                            add3 = own * (n - 2) + mirror * (n - 1)
+                            # cells (see CELL_PRIOR_SHIFT) gain weight occurrences of m = n - k + 1
+                            # (p/q) and n - k + 2 (mirror) and weight times the prior count
+                            add2 = weight + ((own * (n - 1) + mirror * n) << CELL_M_SHIFT)
+                            add3 = weight + ((own * (n - 2) + mirror * (n - 1)) << CELL_M_SHIFT)
                             cap_u = np.uint64(cap)
                             row2_u = np.uint64(row2)
                             row3_u = np.uint64(row3)
@@ -737,58 +779,91 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                                 for j in range(2, n):
                                     s = np.uint64(ring[(tf + j) & RING_MASK, lane])
                                     idx = row2_u + prev1 * cap_u + s
-                                    before = _shared_count(wtab[idx, 3], stamp)
-                                    wtab[idx, 3] = (stamp << 8) | (before + 1)
-                                    wtab[idx, 0] += weight * (1 + (before << 32))
-                                    wtab[idx, 2] += add2
+                                    before = _shared_count(wtab[idx, WORD_SCRATCH], stamp)
+                                    wtab[idx, WORD_SCRATCH] = (stamp << 8) | (before + 1)
+                                    cell = wtab[idx, WORD_CELL] + add2 + ((weight * before) << CELL_PRIOR_SHIFT)
+                                    if (cell & CELL_COUNT_MASK) >= CELL_SPILL_AT:
+                                        _spill_cell(wtab, idx, cell)
+                                        cell = 0
+                                    wtab[idx, WORD_CELL] = cell
                                     prev1 = s
                             else:
                                 for j in range(2, n):
                                     s = np.uint64(ring[(tf + j) & RING_MASK, lane])
                                     code2 = prev1 * cap_u + s
                                     idx = row2_u + code2
-                                    before = _shared_count(wtab[idx, 3], stamp)
-                                    wtab[idx, 3] = (stamp << 8) | (before + 1)
-                                    wtab[idx, 0] += weight * (1 + (before << 32))
-                                    wtab[idx, 2] += add2
+                                    before = _shared_count(wtab[idx, WORD_SCRATCH], stamp)
+                                    wtab[idx, WORD_SCRATCH] = (stamp << 8) | (before + 1)
+                                    cell = wtab[idx, WORD_CELL] + add2 + ((weight * before) << CELL_PRIOR_SHIFT)
+                                    if (cell & CELL_COUNT_MASK) >= CELL_SPILL_AT:
+                                        _spill_cell(wtab, idx, cell)
+                                        cell = 0
+                                    wtab[idx, WORD_CELL] = cell
                                     if j >= 3:
                                         idx = row3_u + prev2 * cap_u + s
-                                        before = _shared_count(wtab[idx, 3], stamp)
-                                        wtab[idx, 3] = (stamp << 8) | (before + 1)
-                                        wtab[idx, 0] += weight * (1 + (before << 32))
-                                        wtab[idx, 2] += add3
+                                        before = _shared_count(wtab[idx, WORD_SCRATCH], stamp)
+                                        wtab[idx, WORD_SCRATCH] = (stamp << 8) | (before + 1)
+                                        cell = wtab[idx, WORD_CELL] + add3 + ((weight * before) << CELL_PRIOR_SHIFT)
+                                        if (cell & CELL_COUNT_MASK) >= CELL_SPILL_AT:
+                                            _spill_cell(wtab, idx, cell)
+                                            cell = 0
+                                        wtab[idx, WORD_CELL] = cell
                                     prev2 = code2
                                     prev1 = s
                             if own != 0:
                                 # p/q's words at position 0
                                 idx = row2_u + t_0 * cap_u + t_1
-                                wtab[idx, 0] += 1 + (_shared_count(wtab[idx, 3], stamp) << 32)
-                                wtab[idx, 2] += n - 1
+                                cell = (wtab[idx, WORD_CELL] + 1 + ((_shared_count(wtab[idx, WORD_SCRATCH], stamp)) << CELL_PRIOR_SHIFT) +
+                                        ((n - 1) << CELL_M_SHIFT))
+                                if (cell & CELL_COUNT_MASK) >= CELL_SPILL_AT:
+                                    _spill_cell(wtab, idx, cell)
+                                    cell = 0
+                                wtab[idx, WORD_CELL] = cell
                                 if max_k == 3 and n >= 3:
                                     idx = row3_u + (t_0 * cap_u + t_1) * cap_u + t_2
-                                    wtab[idx, 0] += 1 + (_shared_count(wtab[idx, 3], stamp) << 32)
-                                    wtab[idx, 2] += n - 2
+                                    cell = (wtab[idx, WORD_CELL] + 1 + ((_shared_count(wtab[idx, WORD_SCRATCH], stamp)) << CELL_PRIOR_SHIFT) +
+                                            ((n - 2) << CELL_M_SHIFT))
+                                    if (cell & CELL_COUNT_MASK) >= CELL_SPILL_AT:
+                                        _spill_cell(wtab, idx, cell)
+                                        cell = 0
+                                    wtab[idx, WORD_CELL] = cell
                             if mirror != 0:
                                 # the mirror's words at positions 0 and 1: (0, m2), (m2, t_1) and
                                 # (0, m2, t_1), (m2, t_1, t_2)
                                 m2 = np.uint64(sym_mirror2)
                                 first = row2_u + m2
                                 second = row2_u + m2 * cap_u + t_1
-                                wtab[first, 0] += 1 + (_shared_count(wtab[first, 3], stamp) << 32)
-                                wtab[first, 2] += n
-                                prior = _shared_count(wtab[second, 3], stamp) + np.int64(first == second)
-                                wtab[second, 0] += 1 + (prior << 32)
-                                wtab[second, 2] += n
+                                cell = (wtab[first, WORD_CELL] + 1 + ((_shared_count(wtab[first, WORD_SCRATCH], stamp)) << CELL_PRIOR_SHIFT) +
+                                        ((n) << CELL_M_SHIFT))
+                                if (cell & CELL_COUNT_MASK) >= CELL_SPILL_AT:
+                                    _spill_cell(wtab, first, cell)
+                                    cell = 0
+                                wtab[first, WORD_CELL] = cell
+                                prior = _shared_count(wtab[second, WORD_SCRATCH], stamp) + np.int64(first == second)
+                                cell = (wtab[second, WORD_CELL] + 1 + ((prior) << CELL_PRIOR_SHIFT) +
+                                        ((n) << CELL_M_SHIFT))
+                                if (cell & CELL_COUNT_MASK) >= CELL_SPILL_AT:
+                                    _spill_cell(wtab, second, cell)
+                                    cell = 0
+                                wtab[second, WORD_CELL] = cell
                                 if max_k == 3:
                                     first = row3_u + m2 * cap_u + t_1
-                                    wtab[first, 0] += 1 + (_shared_count(wtab[first, 3], stamp) << 32)
-                                    wtab[first, 2] += n - 1
+                                    cell = (wtab[first, WORD_CELL] + 1 + ((_shared_count(wtab[first, WORD_SCRATCH], stamp)) << CELL_PRIOR_SHIFT) +
+                                            ((n - 1) << CELL_M_SHIFT))
+                                    if (cell & CELL_COUNT_MASK) >= CELL_SPILL_AT:
+                                        _spill_cell(wtab, first, cell)
+                                        cell = 0
+                                    wtab[first, WORD_CELL] = cell
                                     if n >= 3:
                                         second = row3_u + (m2 * cap_u + t_1) * cap_u + t_2
-                                        prior = (_shared_count(wtab[second, 3], stamp) +
+                                        prior = (_shared_count(wtab[second, WORD_SCRATCH], stamp) +
                                                  np.int64(first == second))
-                                        wtab[second, 0] += 1 + (prior << 32)
-                                        wtab[second, 2] += n - 1
+                                        cell = (wtab[second, WORD_CELL] + 1 + ((prior) << CELL_PRIOR_SHIFT) +
+                                                ((n - 1) << CELL_M_SHIFT))
+                                        if (cell & CELL_COUNT_MASK) >= CELL_SPILL_AT:
+                                            _spill_cell(wtab, second, cell)
+                                            cell = 0
+                                        wtab[second, WORD_CELL] = cell
                         else:
                             _record_words_pair(ring, lane, tf, n, max_k, cap, offsets, codes, wtab,
                                                stamp, own, mirror, sym_mirror2)
@@ -825,12 +900,9 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                             sym1 = (tag >> 2) & 63
                             s2 = cap - 1 if sym1 == cap else sym1 - 1
                             idx = offsets[2] + s2
-                            wtab[idx, 0] += 1
-                            # counted as a rational for the flush period of the packed column
+                            # a rational of its own: a new stamp, so its prior count is 0
                             stamp += 1
-                            if (stamp & PACKED_WORD_PERIOD_MASK) == 0:
-                                _packed_words_to_sums(wtab, row2, word_sums)
-                            wtab[idx, 2] += 1
+                            _word_occurrence(wtab, idx, stamp, 1, 1)
                     continue
                 xf[lane] = p
                 yf[lane] = gen[GEN_R, i]
@@ -906,7 +978,7 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
         word_sums[sym, 1] += sym_sums[2, sym]
         word_sums[sym, 2] += sym_sums[1, sym]
     if words:
-        _packed_words_to_sums(wtab, offsets[2], word_sums)
+        _cells_to_sums(wtab, offsets[2], word_sums)
 
 
 @serial

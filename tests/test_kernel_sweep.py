@@ -141,6 +141,23 @@ def test_lanes_at_the_float32_exact_limit(q):
     assert out[3][0, 0] == 8
 
 
+@pytest.mark.parametrize("cap,max_k", [(2, 4), (3, 4), (32, 3), (32, 2)])
+def test_word_cells_spill_exactly(cap, max_k):
+    # Counts far above what a packed word cell holds before it is emptied into the int64 sums (the
+    # check below makes sure of that), with k = 4 also the removals of the k > 3 path after a spill.
+    expected = ref.reference_sweep_block_serial(2, 700, EMPTY, EMPTY, False, cap, max_k)
+    assert expected[0][cap:, 0].max() > 4 * sweep.CELL_SPILL_AT
+    assert_same(sweep.sweep_block_serial(2, 700, EMPTY, EMPTY, False, cap, max_k), expected)
+
+
+@settings(max_examples=200, deadline=None)
+@given(c=st.integers(-2 ** 15, 2 ** 15 - 1), prior=st.integers(-2 ** 21, 2 ** 21 - 1),
+       m=st.integers(-2 ** 24, 2 ** 24))
+def test_cell_fields_decode(c, prior, m):
+    cell = c + (prior << sweep.CELL_PRIOR_SHIFT) + (m << sweep.CELL_M_SHIFT)
+    assert sweep._cell_sums(np.int64(cell)) == (c, c + 2 * prior, m)
+
+
 def test_large_cap_falls_back_to_reference():
     expected = ref.reference_sweep_block_serial(2, 80, EMPTY, EMPTY, False, 57, 2)
     assert_same(sweep.sweep_block(2, 80, EMPTY, EMPTY, False, 57, 2, 2), expected)

@@ -105,6 +105,12 @@ _U255 = np.uint64(255)
 _U2_53 = np.uint64(FLOAT64_EXACT)
 
 
+# columns of the word table of tally_pairs (one rational at a time, no mirror): sum c, sum of the prior
+# count at each occurrence, sum m, and the scratch ``stamp << 8 | count``
+TALLY_TOTAL, TALLY_PRIOR, TALLY_WEIGHTED, TALLY_SCRATCH = 0, 1, 2, 3
+TALLY_COLUMNS = 4
+
+
 @serial
 def _record_words(ring, mask, lane, t_first, n, k_min, max_k, cap, offsets, codes, wtab, stamp):
     """Add the words of lengths k_min..max_k of one rational to ``wtab`` (used by tally_pairs).
@@ -123,11 +129,11 @@ def _record_words(ring, mask, lane, t_first, n, k_min, max_k, cap, offsets, code
             codes[k] = code
             if k >= k_min:
                 idx = offsets[k] + code
-                before = _shared_count(wtab[idx, WORD_SCRATCH], stamp)
-                wtab[idx, 3] = (stamp << 8) | (before + 1)
-                wtab[idx, 0] += 1
-                wtab[idx, 1] += before
-                wtab[idx, 2] += n - k + 1
+                before = _shared_count(wtab[idx, TALLY_SCRATCH], stamp)
+                wtab[idx, TALLY_SCRATCH] = (stamp << 8) | (before + 1)
+                wtab[idx, TALLY_TOTAL] += 1
+                wtab[idx, TALLY_PRIOR] += before
+                wtab[idx, TALLY_WEIGHTED] += n - k + 1
 
 
 @serial
@@ -283,10 +289,11 @@ def _record_words_pair(ring, lane, t_first, n, max_k, cap, offsets, codes, wtab,
 
 @serial
 def _words_to_sums(wtab, first_row, word_sums):
+    """Add the sums of a tally_pairs word table (see TALLY_COLUMNS) to ``word_sums``."""
     for idx in range(first_row, word_sums.shape[0]):
-        word_sums[idx, 0] += wtab[idx, 0]
-        word_sums[idx, 1] += wtab[idx, 0] + 2 * wtab[idx, 1]
-        word_sums[idx, 2] += wtab[idx, 2]
+        word_sums[idx, 0] += wtab[idx, TALLY_TOTAL]
+        word_sums[idx, 1] += wtab[idx, TALLY_TOTAL] + 2 * wtab[idx, TALLY_PRIOR]
+        word_sums[idx, 2] += wtab[idx, TALLY_WEIGHTED]
 
 
 @serial
@@ -1070,7 +1077,7 @@ def _tally_pairs_range(ps, qs, start, stop, cap, max_k, word_sums, length_hist):
     """Tally pairs start..stop-1 into ``word_sums`` and ``length_hist`` (exact for q < 2**63)."""
     ring = np.zeros((MAX_LENGTH, 1), np.uint8)
     n_words = word_sums.shape[0]
-    wtab = np.zeros((n_words, 4), np.int64)
+    wtab = np.zeros((n_words, TALLY_COLUMNS), np.int64)
     offsets = np.zeros(max_k + 2, np.int64)
     for k in range(1, max_k + 2):
         offsets[k] = word_offset(cap, k)

@@ -56,7 +56,7 @@ How it is fast (see the design note on kernel speed).
   scalar instructions per pair low, which is what bounds this kernel (see bench/).
 * Words of length >= 2 are read from a per-lane ring of symbols when the lane finishes (no ring when
   max_k = 1); the per-word scratch ``stamp << 8 | count`` gives per-rational counts without clearing,
-  and one packed column holds sum c and the prior-count sum (see PACKED_WORD_PERIOD_MASK). For
+  and one packed cell per word holds sum c, the prior-count sum and sum m (see CELL_PRIOR_SHIFT). For
   max_k <= 3 the words p/q and its mirror share (all of p/q's from position 1 on) are booked once
   with both weights; only these enter the scratch, and the few words of one of the two read their
   prior counts from it without writing it.

@@ -40,18 +40,19 @@ How it is fast (see the design note on kernel speed).
   correctly rounded x/y is monotone, so its floor is the true quotient or one more. With a one too big,
   the true a*y >= x + 1, and x + 1 is representable, so the rounded a*y still exceeds x and the sign of
   x - a*y is right; after stepping a down, a*y <= x is exact and so is r = x - a*y.
-* Digit counts of the rational in each lane live in packed per-lane counters (8-bit fields for
-  symbols 0..7, 4-bit fields for 8..39: a symbol s >= 8 is a digit >= 9, and 9**c <= q < 2**31 bounds
-  its count c by 9); the counts of the symbols of a1 and a1 - 1 that the mirror's c**2 sums need are
-  read back from these fields when the pair is booked, which keeps the per-step loop shorter.
-  Finished lanes (a uint64 bit mask, one bit per lane) are copied to a buffer (counters and one
+* Digit counts of the rational in each lane live in a packed per-lane counter (8-bit fields for
+  symbols 0..7, the digits 1..8, about 85% of all digits); the rare symbols s >= 8 (digits >= 9) are
+  a per-lane list instead, one 6-bit item pushed per rare digit (9**c <= q < 2**31 bounds their
+  number by 9, see RARE_ITEM_BITS), which costs the per-step loop one shift and one select.
+  Finished lanes (a uint64 bit mask, one bit per lane) are copied to a buffer (counter, list and one
   packed tag: weights, sym1, n, row) that is booked BUFFER at a time. The mirror's counters are p/q's
   plus a delta that depends on sym1 only (a table built per chunk). The sums of symbols 0..7 of both
   are int32 reductions over the buffer, symbol by symbol, which LLVM vectorises (exact: below 2**31
-  per flush); the 4-bit fields of the rare symbols are summed as SWAR words (fields spread to 16 and
-  32 bits) in loops LLVM vectorises too, and only counts >= 2 (for c**2) and the mirror's changes at
-  rare symbols take scalar branches; per-denominator sums stay in registers while the row stays the
-  same.
+  per flush); a list's two newest items are booked without branches into a small table by item (in
+  rotating copies, so that pairs without rare digits do not queue on one row), and only a third
+  item (about one pair in ten) and the mirror's changes at rare symbols (a1 >= 9, whose counts the
+  c**2 sums need are counted in the list by SWAR) take scalar branches; per-denominator sums stay in
+  registers while the row stays the same.
   Each of these keeps consecutive pairs from waiting on each other's stores and keeps the count of
   scalar instructions per pair low, which is what bounds this kernel (see bench/).
 * Words of length >= 2 are read from a per-lane ring of symbols when the lane finishes (no ring when
@@ -87,7 +88,8 @@ LANES = 64
 # Power of two above the longest expansion of any p/q with q < 2**31 (46 partial quotients).
 RING = 64
 RING_MASK = RING - 1
-# Symbols held by the packed per-lane counters: 8 of 8 bits + 16 + 16 of 4 bits.
+# Symbols the lane kernel counts itself: 8 in the packed counter, the rest (items 1..32) in the rare
+# lists; larger caps go to the plain reference kernel.
 PACKED_SYMBOLS = 40
 # Below this every integer is exact in float32; the quotient then needs at most one correction.
 FLOAT32_EXACT = 2 ** 24
@@ -95,13 +97,8 @@ FLOAT64_EXACT = 2 ** 53
 
 _U0 = np.uint64(0)
 _U1 = np.uint64(1)
-_U2 = np.uint64(2)
-_U4 = np.uint64(4)
 _U8 = np.uint64(8)
-_U15 = np.uint64(15)
-_U24 = np.uint64(24)
 _U63 = np.uint64(63)
-_U255 = np.uint64(255)
 _U2_53 = np.uint64(FLOAT64_EXACT)
 
 
@@ -296,14 +293,28 @@ def _words_to_sums(wtab, first_row, word_sums):
         word_sums[idx, 2] += wtab[idx, TALLY_WEIGHTED]
 
 
+# A lane's rare symbols (s >= 8, the digits >= 9) are a list, not counters: each one drawn is pushed
+# as the 6-bit item s - 7 (1..PACKED_SYMBOLS - 7), newest in the lowest bits. 9**c <= q < 2**31
+# bounds their number by 9, so a list fits in 54 bits, and the empty fields above it read 0.
+RARE_ITEM_BITS = 6
+RARE_ITEM_OFFSET = 7
+_U6 = np.uint64(RARE_ITEM_BITS)
+_U7 = np.uint64(RARE_ITEM_OFFSET)
+# one 1 in each of ten 6-bit fields, and the low five / the top bit of each
+_ITEM_ONES = np.uint64(sum(1 << (RARE_ITEM_BITS * i) for i in range(10)))
+_ITEM_LOW5 = np.uint64(31 * sum(1 << (RARE_ITEM_BITS * i) for i in range(10)))
+_ITEM_TOP = np.uint64(32 * sum(1 << (RARE_ITEM_BITS * i) for i in range(10)))
+
+
 @serial
-def _packed_count(small, mid, high, sym):
-    """Count of symbol ``sym`` (0 <= sym < PACKED_SYMBOLS) held in a lane's packed counters."""
-    u = np.uint64(sym)
-    in_small = (small >> ((u * _U8) & _U63)) & _U255
-    in_mid = (mid >> (((u - _U8) * _U4) & _U63)) & _U15
-    in_high = (high >> (((u - _U24) * _U4) & _U63)) & _U15
-    return np.int64(in_small if sym < 8 else (in_mid if sym < 24 else in_high))
+def _rare_count(rare, sym):
+    """How often symbol ``sym`` (8 <= sym < PACKED_SYMBOLS) is in the rare list ``rare`` (SWAR)."""
+    x = rare ^ (np.uint64(sym - RARE_ITEM_OFFSET) * _ITEM_ONES)
+    # bit 5 of a field is set iff the field is not 0 (the low five bits add without carry)
+    nonzero = ((x & _ITEM_LOW5) + _ITEM_LOW5) | x
+    zero_fields = (~nonzero & _ITEM_TOP) >> np.uint64(5)
+    # the product sums the fields' bits into field 9 (at most 10: no carry)
+    return np.int64(((zero_fields * _ITEM_ONES) >> np.uint64(54)) & _U63)
 
 
 @serial
@@ -337,13 +348,12 @@ def _mirror_row_deltas(cap):
 # Copies of the length table, rotating per pair, so that consecutive pairs of the same length do not
 # form a chain of read-modify-writes on one slot.
 LENGTH_COPIES = 4
-# Nibble masks: a 4-bit count >= 2 has one of bits 1..3; every 4th nibble, in 16-bit fields; the low
-# 16 bits of each 32-bit half.
-_NIBBLE_ABOVE_ONE = np.uint64(0xEEEEEEEEEEEEEEEE)
-_SPREAD16 = np.uint64(0x000F000F000F000F)
-_SPREAD32 = np.uint64(0x0000FFFF0000FFFF)
-# Buffer rows (int64): packed counters small, mid, high of p/q, and its tag (see _lane_chunk).
-BUF_SMALL, BUF_MID, BUF_HIGH, BUF_TAG = 0, 1, 2, 3
+# Rows of a copy of the rare-symbol table (indexed by item; row 0 takes the empty items).
+RARE_ROWS = 64
+# Buffer rows (int64): packed counters of symbols 0..7 of p/q, its rare list and its tag (see
+# _lane_chunk).
+BUF_SMALL, BUF_RARE, BUF_TAG = 0, 1, 2
+BUF_ROWS = 3
 # Fields of a tag: own weight (bit 0), mirror weight (bit 1), sym1 (bits 2..7), n (bits 8..15),
 # per-denominator row (bits 16..).
 TAG_N_SHIFT = 8
@@ -351,17 +361,20 @@ TAG_ROW_SHIFT = 16
 
 
 @serial
-def _flush_finished(nb, buf, cap, row_deltas, work32, sym_sums, length_tab, per_den):
+def _flush_finished(nb, buf, cap, row_deltas, work32, sym_sums, rare_tab, length_tab, per_den):
     """Book ``nb`` buffered finished pairs (p/q and its mirror) into the digit sums.
 
-    ``buf[:, i]``: packed counters of p/q and its tag (weights 0/1 of p/q and of the mirror, the
-    symbol index sym1 of its first digit a1 (``cap`` when a1 > cap), its length n, its
-    per-denominator row). The mirror has length n + 1 and p/q's counts, plus one at symbol 0, minus
-    one at sym1 and plus one at sym2 = sym1 - 1 (the last two only when sym1 < cap). Symbols 0..7 of
-    both, and SWAR words of the rare 4-bit counters, are summed by loops over the buffer that LLVM
-    vectorises; the scalar loop does the rest with few memory updates per pair (per-denominator sums
-    in registers while the row stays the same; rare counts >= 2 and the mirror's changes at rare
-    symbols, a1 >= 9, behind branches).
+    ``buf[:, i]``: packed counters of symbols 0..7 of p/q, its rare list (see RARE_ITEM_BITS) and
+    its tag (weights 0/1 of p/q and of the mirror, the symbol index sym1 of its first digit a1
+    (``cap`` when a1 > cap), its length n, its per-denominator row). The mirror has length n + 1
+    and p/q's counts, plus one at symbol 0, minus one at sym1 and plus one at sym2 = sym1 - 1 (the
+    last two only when sym1 < cap). Symbols 0..7 of both are summed by loops over the buffer that
+    LLVM vectorises; the scalar loop does the rest with few memory updates per pair (per-denominator
+    sums in registers while the row stays the same; the two newest rare items of p/q booked without
+    branches into ``rare_tab``, more items and the mirror's changes at rare symbols, a1 >= 9, behind
+    branches). ``rare_tab[copy * RARE_ROWS + item]``: sum w * c, sum c * (w * n + mirror) and
+    2 * sum w * (pairs of equal items), w = own + mirror, in LENGTH_COPIES rotating copies; see
+    _fold_rare.
     """
     # int32 columns, so that the symbol loops run on 32-bit vector lanes: the byte counters of
     # symbols 0..3 and 4..7, masks -1/0 of the weights 1/0, weighted lengths, and the symbols where
@@ -441,31 +454,40 @@ def _flush_finished(nb, buf, cap, row_deltas, work32, sym_sums, length_tab, per_
         copy = (i & (LENGTH_COPIES - 1)) * RING
         length_tab[copy + n] += own
         length_tab[copy + n + 1] += mirror
-        # rare symbols (>= 8): sum w * c and sum c * (w * n + mirror) are SWAR sums after this loop,
-        # which also count c for c**2; here only counts c >= 2 (a nibble with one of bits 1..3) add
-        # c**2 - c, and the mirror's differences at sym1 and sym1 - 1 are booked
-        v_mid = np.uint64(buf[BUF_MID, i])
-        v_high = np.uint64(buf[BUF_HIGH, i])
-        if ((v_mid | v_high) & _NIBBLE_ABOVE_ONE) != _U0:
-            for word in range(2):
-                v = v_mid if word == 0 else v_high
-                rest = v & _NIBBLE_ABOVE_ONE
-                while rest != _U0:
-                    field = trailing_zeros(rest) >> _U2
-                    shift = field * _U4
-                    rest &= ~(_U15 << shift)
-                    c = np.int64((v >> shift) & _U15)
-                    sym_sums[2, np.int64(field) + (8 if word == 0 else 24)] += w * (c * c - c)
+        # rare symbols (>= 8): the items of p/q's list, for p/q and its mirror alike (w and
+        # wn = w * n + mirror); c**2 = c + 2 * (pairs of equal items)
+        rare = np.uint64(buf[BUF_RARE, i])
+        wn = own * n + mirror * (n + 1)
+        base = (i & (LENGTH_COPIES - 1)) * RARE_ROWS
+        item_a = np.int64(rare & _U63)
+        item_b = np.int64((rare >> _U6) & _U63)
+        rare_tab[base + item_a, 0] += w
+        rare_tab[base + item_a, 1] += wn
+        rare_tab[base + item_b, 0] += w
+        rare_tab[base + item_b, 1] += wn
+        rare_tab[base + item_a, 2] += 2 * w * np.int64(item_a == item_b)
+        rest = rare >> np.uint64(2 * RARE_ITEM_BITS)
+        if rest != _U0:
+            # a third item or more (about one pair in ten): each, and its pairs with the items
+            # before it
+            seen = rare & np.uint64((1 << (2 * RARE_ITEM_BITS)) - 1)
+            while rest != _U0:
+                item = np.int64(rest & _U63)
+                rest >>= _U6
+                rare_tab[base + item, 0] += w
+                rare_tab[base + item, 1] += wn
+                rare_tab[base + item, 2] += 2 * w * _rare_count(seen, item + RARE_ITEM_OFFSET)
+                seen = (seen << _U6) | np.uint64(item)
         if sym1 >= 8 and sym1 < cap and mirror != 0:
             # the mirror has one sym1 less and one sym2 = sym1 - 1 more (p/q counts sym1 at least once)
             m = n + 1
-            c1 = _packed_count(_U0, v_mid, v_high, sym1)
+            c1 = _rare_count(rare, sym1)
             sym_sums[0, sym1] -= 1
             sym_sums[1, sym1] -= m
             sym_sums[2, sym1] += 1 - 2 * c1
             sym2 = sym1 - 1
             if sym2 >= 8:
-                c2 = _packed_count(_U0, v_mid, v_high, sym2)
+                c2 = _rare_count(rare, sym2)
                 sym_sums[0, sym2] += 1
                 sym_sums[1, sym2] += m
                 sym_sums[2, sym2] += 2 * c2 + 1
@@ -474,66 +496,17 @@ def _flush_finished(nb, buf, cap, row_deltas, work32, sym_sums, length_tab, per_
         per_den[row_now, 1] += row_counts >> 32
         for d in range(ROW_DIGITS):
             per_den[row_now, 2 + d] += np.int64((row_digits >> np.uint64(16 * d)) & np.uint64(0xFFFF))
-    # SWAR sums of the 4-bit counters of symbols 8..23 (word 0) and 24..39 (word 1), in a loop LLVM
-    # vectorises: nibble 4g + j of a word is spread to 16-bit field g of e_j and summed times w (at
-    # most 2 * 9 * BUFFER < 2**16 per field and flush); times w * n + mirror (at most 9 * 93 < 2**16
-    # per entry) the four 16-bit fields of one product are split into 32-bit fields before summing
-    for word in range(2):
-        row = BUF_MID + word
-        base = 8 + 16 * word
-        t0 = _U0
-        t1 = _U0
-        t2 = _U0
-        t3 = _U0
-        u0 = _U0
-        u1 = _U0
-        u2 = _U0
-        u3 = _U0
-        o0 = _U0
-        o1 = _U0
-        o2 = _U0
-        o3 = _U0
-        for i in range(nb):
-            tag = np.uint64(buf[BUF_TAG, i])
-            own = tag & _U1
-            mirror = (tag >> _U1) & _U1
-            n = (tag >> np.uint64(TAG_N_SHIFT)) & _U255
-            w = own + mirror
-            wn = w * n + mirror
-            v = np.uint64(buf[row, i])
-            e0 = v & _SPREAD16
-            e1 = (v >> _U4) & _SPREAD16
-            e2 = (v >> _U8) & _SPREAD16
-            e3 = (v >> np.uint64(12)) & _SPREAD16
-            t0 += e0 * w
-            t1 += e1 * w
-            t2 += e2 * w
-            t3 += e3 * w
-            p0 = e0 * wn
-            p1 = e1 * wn
-            p2 = e2 * wn
-            p3 = e3 * wn
-            u0 += p0 & _SPREAD32
-            u1 += p1 & _SPREAD32
-            u2 += p2 & _SPREAD32
-            u3 += p3 & _SPREAD32
-            o0 += (p0 >> np.uint64(16)) & _SPREAD32
-            o1 += (p1 >> np.uint64(16)) & _SPREAD32
-            o2 += (p2 >> np.uint64(16)) & _SPREAD32
-            o3 += (p3 >> np.uint64(16)) & _SPREAD32
-        for j in range(4):
-            t = t0 if j == 0 else (t1 if j == 1 else (t2 if j == 2 else t3))
-            u = u0 if j == 0 else (u1 if j == 1 else (u2 if j == 2 else u3))
-            o = o0 if j == 0 else (o1 if j == 1 else (o2 if j == 2 else o3))
-            for g in range(4):
-                sym = base + 4 * g + j
-                total = np.int64((t >> np.uint64(16 * g)) & np.uint64(0xFFFF))
-                half = u if g % 2 == 0 else o
-                sym_sums[0, sym] += total
-                sym_sums[1, sym] += np.int64((half >> np.uint64(32 * (g // 2))) & np.uint64(0xFFFFFFFF))
-                # c**2 = c unless c >= 2 (booked in the loop above)
-                sym_sums[2, sym] += total
 
+
+@serial
+def _fold_rare(rare_tab, sym_sums):
+    """Add the rare-symbol table's sums (all copies; item = symbol - 7) to ``sym_sums``."""
+    for copy in range(LENGTH_COPIES):
+        for sym in range(8, PACKED_SYMBOLS):
+            row = copy * RARE_ROWS + sym - RARE_ITEM_OFFSET
+            sym_sums[0, sym] += rare_tab[row, 0]
+            sym_sums[1, sym] += rare_tab[row, 1]
+            sym_sums[2, sym] += rare_tab[row, 0] + rare_tab[row, 2]
 
 BUFFER = 512
 @serial
@@ -565,7 +538,8 @@ def _distinct_prime_factors(m, out):
 
 # Fractions generated per batch of first quotients (rows of ``gen`` in _lane_chunk).
 GEN_BATCH = 256
-GEN_P, GEN_Q, GEN_R, GEN_TAG, GEN_SMALL, GEN_MID, GEN_HIGH = 0, 1, 2, 3, 4, 5, 6
+GEN_P, GEN_Q, GEN_R, GEN_TAG, GEN_SMALL, GEN_RARE = 0, 1, 2, 3, 4, 5
+GEN_ROWS = 6
 
 
 GEN_STATE_P, GEN_STATE_Q, GEN_MORE, GEN_FACTORS_OF, GEN_N_FACTORS, GEN_WINDOW, GEN_MASK = 0, 1, 2, 3, 4, 5, 6
@@ -573,7 +547,7 @@ GEN_STATE_P, GEN_STATE_Q, GEN_MORE, GEN_FACTORS_OF, GEN_N_FACTORS, GEN_WINDOW, G
 
 @serial
 def _first_quotients(gen, g_len, q_base, cap):
-    """First quotient a1 = floor(q/p), remainder, tag bits and counters of the batch's fractions."""
+    """First quotient a1 = floor(q/p), remainder, tag bits, counters and rare list of the batch's fractions."""
     # branch-free so that LLVM vectorises it; floor(q/p) in float64 is exact for q < 2**52 after one
     # correction either way
     for i in range(g_len):
@@ -593,8 +567,7 @@ def _first_quotients(gen, g_len, q_base, cap):
         gen[GEN_R, i] = r
         gen[GEN_TAG, i] |= (sym1 << 2) | ((q - q_base) << TAG_ROW_SHIFT)
         gen[GEN_SMALL, i] = np.int64(np.uint64(su < _U8) << ((su * _U8) & _U63))
-        gen[GEN_MID, i] = np.int64(np.uint64((su >= _U8) & (su < _U24)) << (((su - _U8) * _U4) & _U63))
-        gen[GEN_HIGH, i] = np.int64(np.uint64(su >= _U24) << (((su - _U24) * _U4) & _U63))
+        gen[GEN_RARE, i] = np.int64((su - _U7) & (_U0 - np.uint64(su >= _U8)))
 
 
 @serial
@@ -684,8 +657,7 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
     yf = np.empty(LANES, float_proto.dtype)
     quot = np.empty(LANES, float_proto.dtype)
     small = np.zeros(LANES, np.uint64)
-    mid = np.zeros(LANES, np.uint64)
-    high = np.zeros(LANES, np.uint64)
+    rare = np.zeros(LANES, np.uint64)
     t_first = np.zeros(LANES, np.int64)
     # own | mirror << 1 | sym1 << 2 | row << TAG_ROW_SHIFT of the pair in each lane
     lane_tag = np.zeros(LANES, np.int64)
@@ -701,16 +673,17 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
     float_one = consts[1]
     cap_f = consts[2]
 
-    buf = np.zeros((4, BUFFER), np.int64)
+    buf = np.zeros((BUF_ROWS, BUFFER), np.int64)
     work32 = np.zeros((8, BUFFER), np.int32)
     nb = 0
-    gen = np.zeros((7, GEN_BATCH), np.int64)
+    gen = np.zeros((GEN_ROWS, GEN_BATCH), np.int64)
     # coprime_only: the distinct prime factors of the q being generated (at most 9 for q < 2**31)
     factors = np.zeros(16, np.int64)
     patterns = np.zeros(16, np.int64)
     g_len = 0
     g_next = 0
     sym_sums = np.zeros((3, PACKED_SYMBOLS), np.int64)
+    rare_tab = np.zeros((LENGTH_COPIES * RARE_ROWS, 3), np.int64)
     row_deltas = _mirror_row_deltas(cap)
     length_tab = np.zeros(LENGTH_COPIES * RING, np.int64)
 
@@ -743,13 +716,13 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
             if active[lane]:
                 if (not coprime_only) or xf[lane] == float_one:
                     if nb == BUFFER:
-                        _flush_finished(nb, buf, cap, row_deltas, work32, sym_sums, length_tab, per_den)
+                        _flush_finished(nb, buf, cap, row_deltas, work32, sym_sums, rare_tab, length_tab,
+                                        per_den)
                         nb = 0
                     n = t - t_first[lane] + 1
                     tag = lane_tag[lane]
                     buf[BUF_SMALL, nb] = np.int64(small[lane])
-                    buf[BUF_MID, nb] = np.int64(mid[lane])
-                    buf[BUF_HIGH, nb] = np.int64(high[lane])
+                    buf[BUF_RARE, nb] = np.int64(rare[lane])
                     buf[BUF_TAG, nb] = tag | (n << TAG_N_SHIFT)
                     nb += 1
                     if words:
@@ -893,12 +866,11 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                     # p divides q: the expansion is [a1]; gcd(p, q) = p
                     if (not coprime_only) or p == 1:
                         if nb == BUFFER:
-                            _flush_finished(nb, buf, cap, row_deltas, work32, sym_sums, length_tab,
-                                            per_den)
+                            _flush_finished(nb, buf, cap, row_deltas, work32, sym_sums, rare_tab,
+                                            length_tab, per_den)
                             nb = 0
                         buf[BUF_SMALL, nb] = gen[GEN_SMALL, i]
-                        buf[BUF_MID, nb] = gen[GEN_MID, i]
-                        buf[BUF_HIGH, nb] = gen[GEN_HIGH, i]
+                        buf[BUF_RARE, nb] = gen[GEN_RARE, i]
                         buf[BUF_TAG, nb] = tag | (1 << TAG_N_SHIFT)
                         nb += 1
                         mirror = (tag >> 1) & 1
@@ -914,8 +886,7 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                 xf[lane] = p
                 yf[lane] = gen[GEN_R, i]
                 small[lane] = np.uint64(gen[GEN_SMALL, i])
-                mid[lane] = np.uint64(gen[GEN_MID, i])
-                high[lane] = np.uint64(gen[GEN_HIGH, i])
+                rare[lane] = np.uint64(gen[GEN_RARE, i])
                 lane_tag[lane] = tag
                 t_first[lane] = t
                 if words:
@@ -929,8 +900,7 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
                 xf[lane] = 2
                 yf[lane] = 1
                 small[lane] = _U0
-                mid[lane] = _U0
-                high[lane] = _U0
+                rare[lane] = _U0
         if n_active == 0:
             break
         t += 1
@@ -953,8 +923,8 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
             for lane in range(LANES):
                 su = np.uint64(np.int32(quot[lane]) - np.int32(1))
                 small[lane] += np.uint64(su < _U8) << ((su * _U8) & _U63)
-                mid[lane] += np.uint64((su >= _U8) & (su < _U24)) << (((su - _U8) * _U4) & _U63)
-                high[lane] += np.uint64(su >= _U24) << (((su - _U24) * _U4) & _U63)
+                listed = rare[lane]
+                rare[lane] = ((listed << _U6) | (su - _U7)) if su >= _U8 else listed
         else:
             for lane in range(LANES):
                 su = np.uint64(np.int32(quot[lane]) - np.int32(1))
@@ -964,7 +934,8 @@ def _lane_chunk(q_first, q_hi, q_step, q_base, num_ok, den_ok, coprime_only, cap
         for lane in range(LANES):
             ended |= np.uint64(yf[lane] == float_zero) << np.uint64(lane)
 
-    _flush_finished(nb, buf, cap, row_deltas, work32, sym_sums, length_tab, per_den)
+    _flush_finished(nb, buf, cap, row_deltas, work32, sym_sums, rare_tab, length_tab, per_den)
+    _fold_rare(rare_tab, sym_sums)
     for copy in range(LENGTH_COPIES):
         for n in range(RING):
             length_hist[n] += length_tab[copy * RING + n]

@@ -195,3 +195,17 @@ def test_coprime_prefilter_at_composite_and_boundary_denominators(q_lo, q_hi):
     if num_ok is EMPTY:
         rows = expected[3]
         assert [int(r) for r in rows[:, 0]] == [int(sympy.totient(q)) for q in range(q_lo, q_hi + 1)]
+
+
+@pytest.mark.parametrize("cap", [9, 12, 40])
+def test_rare_digit_lists_with_many_and_repeated_items(cap):
+    # Rare symbols (digits >= 9) are kept as per-lane lists; the lists with three items or more and
+    # those with a repeated symbol take their own branch. At q near 10**5 both are common, checked
+    # here on the Fraction expansions of one denominator so that the comparison below is not vacuous.
+    q_lo, q_hi = 99_990, 100_000
+    rare_symbols = [[min(a, cap) for a in fraction_digits(p, q_hi) if a >= 9] for p in range(1, q_hi // 2, 25)]
+    assert sum(len(r) >= 3 for r in rare_symbols) > 100
+    assert sum(len(set(r)) < len(r) for r in rare_symbols) > 20
+    expected = ref.reference_sweep_block_serial(q_lo, q_hi, EMPTY, EMPTY, False, cap, 2)
+    assert_same(sweep.sweep_block_serial(q_lo, q_hi, EMPTY, EMPTY, False, cap, 2), expected)
+    assert_same(sweep.sweep_block(q_lo, q_hi, EMPTY, EMPTY, False, cap, 2, 3), expected)

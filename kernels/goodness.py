@@ -43,19 +43,58 @@ def _same_window(digits, a, b, k):
     return True
 
 
-@serial
-def rational_goodness(digits, n, max_k, min_len, eps, required, good_out):
-    """Set good_out[e] = 1 if the rational with partial quotients digits[:n] is (eps[e], max_k)-good.
+# Gauss measures of the one- and two-digit words with digits below these bounds are looked up in
+# tables filled by cylinder_measure_f64 itself (so the values are the same doubles); longer words and
+# larger digits are computed.
+MU1_DIGITS = 1024
+MU2_DIGITS = 64
 
-    ``eps``: float64 tolerances (any order); ``required[e, k]``: number of words of length k with
-    mu > eps[e] (k = 1..max_k). Words are compared digit by digit (no capping), O(n^2 k) per rational.
+
+@serial
+def mu_tables():
+    """(mu1, mu2): mu1[a] = mu([a]) for 1 <= a < MU1_DIGITS, mu2[a * MU2_DIGITS + b] = mu([a, b])."""
+    word = np.empty(2, np.int64)
+    mu1 = np.zeros(MU1_DIGITS, np.float64)
+    for a in range(1, MU1_DIGITS):
+        word[0] = a
+        mu1[a] = cylinder_measure_f64(word, 0, 1)
+    mu2 = np.zeros(MU2_DIGITS * MU2_DIGITS, np.float64)
+    for a in range(1, MU2_DIGITS):
+        for b in range(1, MU2_DIGITS):
+            word[0] = a
+            word[1] = b
+            mu2[a * MU2_DIGITS + b] = cylinder_measure_f64(word, 0, 2)
+    return mu1, mu2
+
+
+@serial
+def _small_code(digits, j, k):
+    """The table index of the word at position j of length k (1 or 2, digits below the table bounds),
+    or -1 for any other word."""
+    if k == 1:
+        return digits[j] if digits[j] < MU1_DIGITS else -1
+    if k == 2 and digits[j] < MU2_DIGITS and digits[j + 1] < MU2_DIGITS:
+        return digits[j] * MU2_DIGITS + digits[j + 1]
+    return -1
+
+
+@serial
+def _rational_goodness(digits, n, max_k, min_len, eps, required, good_out, present, seen, counts, mu1,
+                       mu2):
+    """:func:`rational_goodness` with its scratch (``present``: n_eps, ``seen``: >= n entries,
+    ``counts``: MU2_DIGITS**2 zeros, left zero) and the measure tables of :func:`mu_tables` passed in,
+    so that a sweep allocates nothing per rational.
+
+    Words of one or two digits below the table bounds (nearly all) are counted in ``counts`` by code,
+    in two passes over the rational; any other word is counted from its first position, comparing
+    digit by digit and marking its later positions as seen. Either way each distinct word is met once,
+    at its first position, and its measure comes from the tables when its digits are small.
     """
     n_eps = eps.shape[0]
     for e in range(n_eps):
         good_out[e] = 0
     if n < min_len:
         return
-    present = np.zeros(n_eps, np.int64)
     max_dev = 0.0
     for k in range(1, max_k + 1):
         m = n - k + 1
@@ -63,18 +102,27 @@ def rational_goodness(digits, n, max_k, min_len, eps, required, good_out):
             present[e] = 0
         if m > 0:
             for j in range(m):
-                first = True
-                for jp in range(j):
-                    if _same_window(digits, jp, j, k):
-                        first = False
-                        break
-                if not first:
-                    continue
-                c = 1
-                for jn in range(j + 1, m):
-                    if _same_window(digits, jn, j, k):
-                        c += 1
-                mu = cylinder_measure_f64(digits, j, k)
+                seen[j] = 0
+                code = _small_code(digits, j, k)
+                if code >= 0:
+                    counts[code] += 1
+            for j in range(m):
+                code = _small_code(digits, j, k)
+                if code >= 0:
+                    c = counts[code]
+                    if c == 0:
+                        continue  # counted at its first position
+                    counts[code] = 0
+                    mu = mu1[code] if k == 1 else mu2[code]
+                else:
+                    if seen[j] != 0:
+                        continue
+                    c = 1
+                    for jn in range(j + 1, m):
+                        if seen[jn] == 0 and _same_window(digits, jn, j, k):
+                            seen[jn] = 1
+                            c += 1
+                    mu = cylinder_measure_f64(digits, j, k)
                 dev = abs(c / m - mu)
                 if dev > max_dev:
                     max_dev = dev
@@ -92,12 +140,28 @@ def rational_goodness(digits, n, max_k, min_len, eps, required, good_out):
 
 
 @serial
-def _goodness_chunk(q_lo, q_hi, q_step, num_ok, den_ok, coprime_only, max_k, min_len, eps, required, out):
+def rational_goodness(digits, n, max_k, min_len, eps, required, good_out):
+    """Set good_out[e] = 1 if the rational with partial quotients digits[:n] is (eps[e], max_k)-good.
+
+    ``eps``: float64 tolerances (any order); ``required[e, k]``: number of words of length k with
+    mu > eps[e] (k = 1..max_k). Words are compared digit by digit (no capping), O(n^2 k) per rational.
+    """
+    mu1, mu2 = mu_tables()
+    _rational_goodness(digits, n, max_k, min_len, eps, required, good_out, np.zeros(eps.shape[0], np.int64),
+                       np.zeros(max(n, 1), np.uint8), np.zeros(MU2_DIGITS * MU2_DIGITS, np.int64), mu1, mu2)
+
+
+@serial
+def _goodness_chunk(q_lo, q_hi, q_step, num_ok, den_ok, coprime_only, max_k, min_len, eps, required, mu1,
+                    mu2, out):
     has_num = num_ok.shape[0] > 0
     has_den = den_ok.shape[0] > 0
     n_eps = eps.shape[0]
     digits = np.empty(MAX_LENGTH, np.int64)
     flags = np.zeros(n_eps, np.uint8)
+    present = np.zeros(n_eps, np.int64)
+    seen = np.zeros(MAX_LENGTH, np.uint8)
+    counts = np.zeros(MU2_DIGITS * MU2_DIGITS, np.int64)
     q = q_lo
     while q <= q_hi:
         i = q - q_lo
@@ -108,7 +172,8 @@ def _goodness_chunk(q_lo, q_hi, q_step, num_ok, den_ok, coprime_only, max_k, min
                 n, g = expand(p, q, digits)
                 if coprime_only and g != 1:
                     continue
-                rational_goodness(digits, n, max_k, min_len, eps, required, flags)
+                _rational_goodness(digits, n, max_k, min_len, eps, required, flags, present, seen, counts,
+                                   mu1, mu2)
                 for e in range(n_eps):
                     out[i, e] += flags[e]
         q += q_step
@@ -122,10 +187,11 @@ def goodness_block(q_lo, q_hi, num_ok, den_ok, coprime_only, max_k, min_len, eps
     chunks cyclically and each row is written by one chunk only.
     """
     out = np.zeros((q_hi - q_lo + 1, eps.shape[0]), np.int64)
+    mu1, mu2 = mu_tables()
     for c in prange(n_chunks):
         if q_lo + c <= q_hi:
             _goodness_chunk(q_lo + c, q_hi, n_chunks, num_ok, den_ok, coprime_only, max_k, min_len, eps,
-                            required, out[c:])
+                            required, mu1, mu2, out[c:])
     return out
 
 
@@ -140,16 +206,21 @@ def goodness_pairs(ps, qs, bin_edges, max_k, min_len, eps, required, n_chunks):
     n_eps = eps.shape[0]
     partial = np.zeros((n_chunks, n_bins, 1 + n_eps), np.int64)
     total = ps.shape[0]
+    mu1, mu2 = mu_tables()
     for c in prange(n_chunks):
         digits = np.empty(MAX_LENGTH, np.int64)
         flags = np.zeros(n_eps, np.uint8)
+        present = np.zeros(n_eps, np.int64)
+        seen = np.zeros(MAX_LENGTH, np.uint8)
+        counts = np.zeros(MU2_DIGITS * MU2_DIGITS, np.int64)
         for i in range(c, total, n_chunks):
             q = np.uint64(qs[i])
             n, _ = expand(np.int64(ps[i]), np.int64(q), digits)  # q < 2**63 fits int64
             b = np.searchsorted(bin_edges, q, side="right") - 1
             if b < 0 or b >= n_bins:
                 continue
-            rational_goodness(digits, n, max_k, min_len, eps, required, flags)
+            _rational_goodness(digits, n, max_k, min_len, eps, required, flags, present, seen, counts, mu1,
+                               mu2)
             partial[c, b, 0] += 1
             for e in range(n_eps):
                 partial[c, b, 1 + e] += flags[e]

@@ -80,6 +80,35 @@ def test_goodness_matches_exact_reference(pq, eps_values, max_k, min_len):
     assert got == [reference_good(digits, e, max_k, min_len) for e in eps_values]
 
 
+@given(st.lists(st.one_of(st.integers(1, 4), st.integers(62, 66), st.integers(1022, 1026)), min_size=1,
+                max_size=12),
+       st.sampled_from([(0.05,), (0.1, 0.3), (0.2, 0.5, 0.9)]), st.integers(1, 3), st.integers(1, 3))
+def test_goodness_of_digit_strings_around_the_table_bounds(digits, eps_values, max_k, min_len):
+    # words of one or two small digits are counted in a table by code, any other word digit by digit;
+    # digits on both sides of the table bounds (64 for pairs, 1024 for single digits), repeated, mix
+    # the two ways within one rational
+    got = _kernel_good(digits, eps_values, max_k, min_len)
+    assert got == [reference_good(digits, e, max_k, min_len) for e in eps_values]
+
+
+def test_goodness_decided_by_words_at_the_table_bounds():
+    # single words whose measure decides the verdict: f = 1 and mu tiny gives a deviation near 1, so
+    # eps just below or above it flips the answer; a word filed under a neighbour's code (or given a
+    # neighbour's measure) would flip it the other way
+    cases = [[2, 63], [2, 64], [2, 65], [63, 2], [64, 2], [1023], [1024], [1025], [2, 1023, 2, 1023]]
+    verdicts = []
+    for digits in cases:
+        for max_k in (1, 2):
+            m = len(digits) - max_k + 1
+            word = tuple(digits[:max_k])
+            dev = float(1 - _mu_mp(word)) if m == 1 else None
+            eps_values = [0.9, 0.99] + ([dev * (1 - 1e-9), dev * (1 + 1e-9)] if dev else [])
+            got = _kernel_good(digits, eps_values, max_k, 1)
+            assert got == [reference_good(digits, e, max_k, 1) for e in eps_values], (digits, max_k)
+            verdicts += got
+    assert True in verdicts and False in verdicts
+
+
 def test_goodness_edge_cases():
     # n < k: a single digit has no word of length 2, so every required word of length 2 is absent.
     assert _kernel_good([2], [0.9], 2, 1) == [True]   # nothing has mu > 0.9 at k = 2; |1 - mu(2)| = 0.83 <= 0.9

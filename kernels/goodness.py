@@ -109,11 +109,15 @@ def _rational_goodness(digits, n, max_k, min_len, eps, required, good_out, prese
             for j in range(m):
                 code = _small_code(digits, j, k)
                 if code >= 0:
+                    # branch-free: a later position of a word reads c = 0 and adds nothing
                     c = counts[code]
-                    if c == 0:
-                        continue  # counted at its first position
                     counts[code] = 0
                     mu = mu1[code] if k == 1 else mu2[code]
+                    first = np.int64(c > 0)
+                    max_dev = max(max_dev, abs(c / m - mu) * first)
+                    for e in range(n_eps):
+                        present[e] += np.int64(mu > eps[e]) & first
+                    continue
                 else:
                     if seen[j] != 0:
                         continue

@@ -43,17 +43,21 @@ def _same_window(digits, a, b, k):
     return True
 
 
-# Gauss measures of the one- and two-digit words with digits below these bounds are looked up in
+# Gauss measures of the words of one, two and three digits below these bounds are looked up in
 # tables filled by cylinder_measure_f64 itself (so the values are the same doubles); longer words and
 # larger digits are computed.
 MU1_DIGITS = 1024
 MU2_DIGITS = 64
+MU3_DIGITS = 16
+# the codes of all three tables index one scratch table of counts
+CODES = max(MU1_DIGITS, MU2_DIGITS ** 2, MU3_DIGITS ** 3)
 
 
 @serial
 def mu_tables():
-    """(mu1, mu2): mu1[a] = mu([a]) for 1 <= a < MU1_DIGITS, mu2[a * MU2_DIGITS + b] = mu([a, b])."""
-    word = np.empty(2, np.int64)
+    """(mu1, mu2, mu3): mu1[a] = mu([a]) for 1 <= a < MU1_DIGITS, mu2[a * MU2_DIGITS + b] = mu([a, b]),
+    mu3[(a * MU3_DIGITS + b) * MU3_DIGITS + c] = mu([a, b, c])."""
+    word = np.empty(3, np.int64)
     mu1 = np.zeros(MU1_DIGITS, np.float64)
     for a in range(1, MU1_DIGITS):
         word[0] = a
@@ -64,28 +68,40 @@ def mu_tables():
             word[0] = a
             word[1] = b
             mu2[a * MU2_DIGITS + b] = cylinder_measure_f64(word, 0, 2)
-    return mu1, mu2
+    mu3 = np.zeros(MU3_DIGITS ** 3, np.float64)
+    for a in range(1, MU3_DIGITS):
+        for b in range(1, MU3_DIGITS):
+            for c in range(1, MU3_DIGITS):
+                word[0] = a
+                word[1] = b
+                word[2] = c
+                mu3[(a * MU3_DIGITS + b) * MU3_DIGITS + c] = cylinder_measure_f64(word, 0, 3)
+    return mu1, mu2, mu3
 
 
 @serial
 def _small_code(digits, j, k):
-    """The table index of the word at position j of length k (1 or 2, digits below the table bounds),
-    or -1 for any other word."""
+    """The table index of the word at position j of length k (1, 2 or 3, digits below the table
+    bounds), or -1 for any other word."""
     if k == 1:
         return digits[j] if digits[j] < MU1_DIGITS else -1
-    if k == 2 and digits[j] < MU2_DIGITS and digits[j + 1] < MU2_DIGITS:
-        return digits[j] * MU2_DIGITS + digits[j + 1]
+    if k == 2:
+        if digits[j] < MU2_DIGITS and digits[j + 1] < MU2_DIGITS:
+            return digits[j] * MU2_DIGITS + digits[j + 1]
+        return -1
+    if k == 3 and digits[j] < MU3_DIGITS and digits[j + 1] < MU3_DIGITS and digits[j + 2] < MU3_DIGITS:
+        return (digits[j] * MU3_DIGITS + digits[j + 1]) * MU3_DIGITS + digits[j + 2]
     return -1
 
 
 @serial
 def _rational_goodness(digits, n, max_k, min_len, eps, required, good_out, present, seen, counts, mu1,
-                       mu2):
+                       mu2, mu3):
     """:func:`rational_goodness` with its scratch (``present``: n_eps, ``seen``: >= n entries,
-    ``counts``: MU2_DIGITS**2 zeros, left zero) and the measure tables of :func:`mu_tables` passed in,
+    ``counts``: CODES zeros, left zero) and the measure tables of :func:`mu_tables` passed in,
     so that a sweep allocates nothing per rational.
 
-    Words of one or two digits below the table bounds (nearly all) are counted in ``counts`` by code,
+    Words of one, two or three digits below the table bounds (nearly all) are counted in ``counts`` by code,
     in two passes over the rational; any other word is counted from its first position, comparing
     digit by digit and marking its later positions as seen. Either way each distinct word is met once,
     at its first position, and its measure comes from the tables when its digits are small.
@@ -112,7 +128,7 @@ def _rational_goodness(digits, n, max_k, min_len, eps, required, good_out, prese
                     # branch-free: a later position of a word reads c = 0 and adds nothing
                     c = counts[code]
                     counts[code] = 0
-                    mu = mu1[code] if k == 1 else mu2[code]
+                    mu = mu1[code] if k == 1 else (mu2[code] if k == 2 else mu3[code])
                     first = np.int64(c > 0)
                     max_dev = max(max_dev, abs(c / m - mu) * first)
                     for e in range(n_eps):
@@ -150,14 +166,14 @@ def rational_goodness(digits, n, max_k, min_len, eps, required, good_out):
     ``eps``: float64 tolerances (any order); ``required[e, k]``: number of words of length k with
     mu > eps[e] (k = 1..max_k). Words are compared digit by digit (no capping), O(n^2 k) per rational.
     """
-    mu1, mu2 = mu_tables()
+    mu1, mu2, mu3 = mu_tables()
     _rational_goodness(digits, n, max_k, min_len, eps, required, good_out, np.zeros(eps.shape[0], np.int64),
-                       np.zeros(max(n, 1), np.uint8), np.zeros(MU2_DIGITS * MU2_DIGITS, np.int64), mu1, mu2)
+                       np.zeros(max(n, 1), np.uint8), np.zeros(CODES, np.int64), mu1, mu2, mu3)
 
 
 @serial
 def _goodness_chunk(q_lo, q_hi, q_step, num_ok, den_ok, coprime_only, max_k, min_len, eps, required, mu1,
-                    mu2, out):
+                    mu2, mu3, out):
     has_num = num_ok.shape[0] > 0
     has_den = den_ok.shape[0] > 0
     n_eps = eps.shape[0]
@@ -165,7 +181,7 @@ def _goodness_chunk(q_lo, q_hi, q_step, num_ok, den_ok, coprime_only, max_k, min
     flags = np.zeros(n_eps, np.uint8)
     present = np.zeros(n_eps, np.int64)
     seen = np.zeros(MAX_LENGTH, np.uint8)
-    counts = np.zeros(MU2_DIGITS * MU2_DIGITS, np.int64)
+    counts = np.zeros(CODES, np.int64)
     q = q_lo
     while q <= q_hi:
         i = q - q_lo
@@ -177,7 +193,7 @@ def _goodness_chunk(q_lo, q_hi, q_step, num_ok, den_ok, coprime_only, max_k, min
                 if coprime_only and g != 1:
                     continue
                 _rational_goodness(digits, n, max_k, min_len, eps, required, flags, present, seen, counts,
-                                   mu1, mu2)
+                                   mu1, mu2, mu3)
                 for e in range(n_eps):
                     out[i, e] += flags[e]
         q += q_step
@@ -191,11 +207,11 @@ def goodness_block(q_lo, q_hi, num_ok, den_ok, coprime_only, max_k, min_len, eps
     chunks cyclically and each row is written by one chunk only.
     """
     out = np.zeros((q_hi - q_lo + 1, eps.shape[0]), np.int64)
-    mu1, mu2 = mu_tables()
+    mu1, mu2, mu3 = mu_tables()
     for c in prange(n_chunks):
         if q_lo + c <= q_hi:
             _goodness_chunk(q_lo + c, q_hi, n_chunks, num_ok, den_ok, coprime_only, max_k, min_len, eps,
-                            required, mu1, mu2, out[c:])
+                            required, mu1, mu2, mu3, out[c:])
     return out
 
 
@@ -210,13 +226,13 @@ def goodness_pairs(ps, qs, bin_edges, max_k, min_len, eps, required, n_chunks):
     n_eps = eps.shape[0]
     partial = np.zeros((n_chunks, n_bins, 1 + n_eps), np.int64)
     total = ps.shape[0]
-    mu1, mu2 = mu_tables()
+    mu1, mu2, mu3 = mu_tables()
     for c in prange(n_chunks):
         digits = np.empty(MAX_LENGTH, np.int64)
         flags = np.zeros(n_eps, np.uint8)
         present = np.zeros(n_eps, np.int64)
         seen = np.zeros(MAX_LENGTH, np.uint8)
-        counts = np.zeros(MU2_DIGITS * MU2_DIGITS, np.int64)
+        counts = np.zeros(CODES, np.int64)
         for i in range(c, total, n_chunks):
             q = np.uint64(qs[i])
             n, _ = expand(np.int64(ps[i]), np.int64(q), digits)  # q < 2**63 fits int64
@@ -224,7 +240,7 @@ def goodness_pairs(ps, qs, bin_edges, max_k, min_len, eps, required, n_chunks):
             if b < 0 or b >= n_bins:
                 continue
             _rational_goodness(digits, n, max_k, min_len, eps, required, flags, present, seen, counts, mu1,
-                               mu2)
+                               mu2, mu3)
             partial[c, b, 0] += 1
             for e in range(n_eps):
                 partial[c, b, 1 + e] += flags[e]

@@ -80,12 +80,12 @@ def test_goodness_matches_exact_reference(pq, eps_values, max_k, min_len):
     assert got == [reference_good(digits, e, max_k, min_len) for e in eps_values]
 
 
-@given(st.lists(st.one_of(st.integers(1, 4), st.integers(62, 66), st.integers(1022, 1026)), min_size=1,
-                max_size=12),
+@given(st.lists(st.one_of(st.integers(1, 4), st.integers(14, 18), st.integers(62, 66), st.integers(1022, 1026)),
+                min_size=1, max_size=12),
        st.sampled_from([(0.05,), (0.1, 0.3), (0.2, 0.5, 0.9)]), st.integers(1, 3), st.integers(1, 3))
 def test_goodness_of_digit_strings_around_the_table_bounds(digits, eps_values, max_k, min_len):
-    # words of one or two small digits are counted in a table by code, any other word digit by digit;
-    # digits on both sides of the table bounds (64 for pairs, 1024 for single digits), repeated, mix
+    # words of one to three small digits are counted in a table by code, any other word digit by digit;
+    # digits on both sides of the table bounds (16 for three digits, 64 for two, 1024 for one), repeated, mix
     # the two ways within one rational
     got = _kernel_good(digits, eps_values, max_k, min_len)
     assert got == [reference_good(digits, e, max_k, min_len) for e in eps_values]
@@ -95,10 +95,11 @@ def test_goodness_decided_by_words_at_the_table_bounds():
     # single words whose measure decides the verdict: f = 1 and mu tiny gives a deviation near 1, so
     # eps just below or above it flips the answer; a word filed under a neighbour's code (or given a
     # neighbour's measure) would flip it the other way
-    cases = [[2, 63], [2, 64], [2, 65], [63, 2], [64, 2], [1023], [1024], [1025], [2, 1023, 2, 1023]]
+    cases = [[2, 63], [2, 64], [2, 65], [63, 2], [64, 2], [1023], [1024], [1025], [2, 1023, 2, 1023],
+             [2, 15, 3], [2, 16, 3], [2, 17, 3], [16, 2, 2], [15, 15, 15]]
     verdicts = []
     for digits in cases:
-        for max_k in (1, 2):
+        for max_k in (1, 2, 3):
             m = len(digits) - max_k + 1
             word = tuple(digits[:max_k])
             dev = float(1 - _mu_mp(word)) if m == 1 else None

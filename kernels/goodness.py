@@ -101,10 +101,11 @@ def _rational_goodness(digits, n, max_k, min_len, eps, required, good_out, prese
     ``counts``: CODES zeros, left zero) and the measure tables of :func:`mu_tables` passed in,
     so that a sweep allocates nothing per rational.
 
-    Words of one, two or three digits below the table bounds (nearly all) are counted in ``counts`` by code,
-    in two passes over the rational; any other word is counted from its first position, comparing
-    digit by digit and marking its later positions as seen. Either way each distinct word is met once,
-    at its first position, and its measure comes from the tables when its digits are small.
+    Words of one, two or three digits below the table bounds (nearly all) are counted in ``counts``
+    by code, in two passes over the rational; any other word is counted from its first position,
+    comparing digit by digit and marking its later positions as seen. Either way each distinct word
+    is met once, at its first position, and its measure comes from the tables when its digits are
+    small.
     """
     n_eps = eps.shape[0]
     for e in range(n_eps):
@@ -134,15 +135,14 @@ def _rational_goodness(digits, n, max_k, min_len, eps, required, good_out, prese
                     for e in range(n_eps):
                         present[e] += np.int64(mu > eps[e]) & first
                     continue
-                else:
-                    if seen[j] != 0:
-                        continue
-                    c = 1
-                    for jn in range(j + 1, m):
-                        if seen[jn] == 0 and _same_window(digits, jn, j, k):
-                            seen[jn] = 1
-                            c += 1
-                    mu = cylinder_measure_f64(digits, j, k)
+                if seen[j] != 0:
+                    continue
+                c = 1
+                for jn in range(j + 1, m):
+                    if seen[jn] == 0 and _same_window(digits, jn, j, k):
+                        seen[jn] = 1
+                        c += 1
+                mu = cylinder_measure_f64(digits, j, k)
                 dev = abs(c / m - mu)
                 if dev > max_dev:
                     max_dev = dev
@@ -164,7 +164,8 @@ def rational_goodness(digits, n, max_k, min_len, eps, required, good_out):
     """Set good_out[e] = 1 if the rational with partial quotients digits[:n] is (eps[e], max_k)-good.
 
     ``eps``: float64 tolerances (any order); ``required[e, k]``: number of words of length k with
-    mu > eps[e] (k = 1..max_k). Words are compared digit by digit (no capping), O(n^2 k) per rational.
+    mu > eps[e] (k = 1..max_k). Words are compared exactly (no capping). For one rational at a time:
+    it builds the measure tables and scratch on every call (the block kernels build them once).
     """
     mu1, mu2, mu3 = mu_tables()
     _rational_goodness(digits, n, max_k, min_len, eps, required, good_out, np.zeros(eps.shape[0], np.int64),

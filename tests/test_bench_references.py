@@ -5,30 +5,22 @@ checks them all, the kernel included, against an independent first-principles co
 whose expansions are themselves checked against fractions.Fraction and sympy), so that a C reference that
 fails to build or miscounts on some CPU shows here and not only in a benchmark run.
 """
-import importlib.util
 import shutil
-import sys
 from collections import Counter
-from pathlib import Path
 
 import numpy as np
 import pytest
 
+from bench_modules import load_bench
 from reference import cf_fraction
 
-BENCH = Path(__file__).resolve().parents[1] / "bench" / "run.py"
 CAP = 32
 Q_LO, Q_HI = 2, 260
 
 
 @pytest.fixture(scope="module")
 def bench():
-    spec = importlib.util.spec_from_file_location("cfsweep_bench_run", BENCH)
-    module = importlib.util.module_from_spec(spec)
-    # Numba's cache finds the module of a cached function through sys.modules
-    sys.modules[spec.name] = module
-    spec.loader.exec_module(module)
-    return module
+    return load_bench("run.py", "cfsweep_bench_run")
 
 
 @pytest.fixture(scope="module")

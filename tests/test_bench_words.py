@@ -3,27 +3,20 @@
 The words benchmark divides time by the occurrences it reads from the kernel's sums; this checks those
 counts against first-principles expansions (tests/reference.cf_fraction, on fractions.Fraction).
 """
-import importlib.util
 import math
-import sys
 from collections import Counter
-from pathlib import Path
 
 import pytest
 
+from bench_modules import load_bench
 from reference import cf_fraction, symbol_word
 
-BENCH = Path(__file__).resolve().parents[1] / "bench" / "bench_words.py"
 Q_HI = 150
 
 
 @pytest.fixture(scope="module")
 def bench():
-    spec = importlib.util.spec_from_file_location("cfsweep_bench_words", BENCH)
-    module = importlib.util.module_from_spec(spec)
-    sys.modules[spec.name] = module
-    spec.loader.exec_module(module)
-    return module
+    return load_bench("bench_words.py", "cfsweep_bench_words")
 
 
 def test_occurrences_and_equal_pairs_match_plain_python(bench):

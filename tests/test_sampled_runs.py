@@ -1,5 +1,7 @@
 """Sampled runs: determinism, family membership at huge q, exact counts of the drawn pairs, coverage."""
 
+import warnings
+
 import numpy as np
 import pytest
 
@@ -110,6 +112,19 @@ def test_scan_and_good_on_sampled_run(tmp_path, capsys):
     result = good_proportion(tmp_path / "s")
     assert sorted(set(result.bins["q_lo"].to_pylist())) == [1000, 10000, 100000]
     assert set(result.bins["members"].to_pylist()) == {3000}
+
+
+def test_good_on_one_sampled_range_warns_nothing(tmp_path, capsys):
+    # one range gives one bin: no fit and no heuristic to draw, and so nothing to put in a legend
+    assert main(["sample", "--den-range", "1e6:2e6", "--samples", "2000", "--seed", "3", "--words", "2",
+                 "--good-eps", "0.1,0.2", "--good-k", "2", "--out", str(tmp_path / "s"), "--quiet"]) == 0
+    capsys.readouterr()
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        assert main(["good", str(tmp_path / "s")]) == 0
+    captured = capsys.readouterr()
+    assert "too few bins" in captured.out and captured.err == ""
+    assert (tmp_path / "s" / "tables" / "good.png").stat().st_size > 0
 
 
 @pytest.mark.parametrize("args,needle", [

@@ -100,7 +100,9 @@ def goodness_figure(result, path: Path) -> Path:
     axb.set_yscale("log")
     axb.set_ylabel("1 - G(q)")
     axb.set_xlabel("denominator q (log bins)")
-    axb.legend(fontsize=6)
+    # no fit and no heuristic (too few bins, as in a run of one range) leaves nothing to name
+    if axb.get_legend_handles_labels()[1]:
+        axb.legend(fontsize=6)
     fig.tight_layout()
     fig.savefig(path, dpi=120)
     plt.close(fig)

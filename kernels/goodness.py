@@ -183,20 +183,35 @@ def _goodness_chunk(q_lo, q_hi, q_step, num_ok, den_ok, coprime_only, max_k, min
     present = np.zeros(n_eps, np.int64)
     seen = np.zeros(MAX_LENGTH, np.uint8)
     counts = np.zeros(CODES, np.int64)
+    mirror_digits = np.empty(MAX_LENGTH, np.int64)
     q = q_lo
     while q <= q_hi:
         i = q - q_lo
         if (not has_den) or den_ok[q] != 0:
-            for p in range(1, q):
-                if has_num and num_ok[p] == 0:
+            # p/q with 2p < q and its mirror (q - p)/q = [0; 1, a1 - 1, a2, ..., an] from one expansion
+            # (a1 >= 2; gcd(q - p, q) = gcd(p, q)); the middle p = q/2 of even q is its own mirror
+            for p in range(1, q // 2 + 1):
+                own = (not has_num) or num_ok[p] != 0
+                mirror = 2 * p < q and ((not has_num) or num_ok[q - p] != 0)
+                if not (own or mirror):
                     continue
                 n, g = expand(p, q, digits)
                 if coprime_only and g != 1:
                     continue
-                _rational_goodness(digits, n, max_k, min_len, eps, required, flags, present, seen, counts,
-                                   mu1, mu2, mu3)
-                for e in range(n_eps):
-                    out[i, e] += flags[e]
+                if own:
+                    _rational_goodness(digits, n, max_k, min_len, eps, required, flags, present, seen,
+                                       counts, mu1, mu2, mu3)
+                    for e in range(n_eps):
+                        out[i, e] += flags[e]
+                if mirror:
+                    mirror_digits[0] = 1
+                    mirror_digits[1] = digits[0] - 1
+                    for j in range(1, n):
+                        mirror_digits[j + 1] = digits[j]
+                    _rational_goodness(mirror_digits, n + 1, max_k, min_len, eps, required, flags, present,
+                                       seen, counts, mu1, mu2, mu3)
+                    for e in range(n_eps):
+                        out[i, e] += flags[e]
         q += q_step
 
 

@@ -301,9 +301,10 @@ RARE_ITEM_OFFSET = 7
 _U6 = np.uint64(RARE_ITEM_BITS)
 _U7 = np.uint64(RARE_ITEM_OFFSET)
 # one 1 in each of ten 6-bit fields, and the low five / the top bit of each
-_ITEM_ONES = np.uint64(sum(1 << (RARE_ITEM_BITS * i) for i in range(10)))
-_ITEM_LOW5 = np.uint64(31 * sum(1 << (RARE_ITEM_BITS * i) for i in range(10)))
-_ITEM_TOP = np.uint64(32 * sum(1 << (RARE_ITEM_BITS * i) for i in range(10)))
+_ITEM_FIELDS_ONE = sum(1 << (RARE_ITEM_BITS * i) for i in range(10))
+_ITEM_ONES = np.uint64(_ITEM_FIELDS_ONE)
+_ITEM_LOW5 = np.uint64(31 * _ITEM_FIELDS_ONE)
+_ITEM_TOP = np.uint64(32 * _ITEM_FIELDS_ONE)
 
 
 @serial
@@ -508,6 +509,7 @@ def _fold_rare(rare_tab, sym_sums):
             sym_sums[1, sym] += rare_tab[row, 1]
             sym_sums[2, sym] += rare_tab[row, 0] + rare_tab[row, 2]
 
+
 BUFFER = 512
 @serial
 def _distinct_prime_factors(m, out):
@@ -547,7 +549,8 @@ GEN_STATE_P, GEN_STATE_Q, GEN_MORE, GEN_FACTORS_OF, GEN_N_FACTORS, GEN_WINDOW, G
 
 @serial
 def _first_quotients(gen, g_len, q_base, cap):
-    """First quotient a1 = floor(q/p), remainder, tag bits, counters and rare list of the batch's fractions."""
+    """First quotient a1 = floor(q/p), remainder, tag bits, counter and rare list of the batch's
+    fractions."""
     # branch-free so that LLVM vectorises it; floor(q/p) in float64 is exact for q < 2**52 after one
     # correction either way
     for i in range(g_len):
